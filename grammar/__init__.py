@@ -1,0 +1,1 @@
+"""The netlist and expression grammars (lark, LALR), shipped as package data."""
