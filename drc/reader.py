@@ -1,0 +1,351 @@
+"""Read one netlist file into cards, keeping where every field was typed.
+
+The grammar (grammar/netlist.lark) is the definition of the language. Most cards of an
+exported schematic are plain one-line cards (`R12 a b 4.7k`); for those a fast path splits
+the line on white space and gives exactly the result the grammar gives (a differential test,
+tests/test_reader_fastpath.py, holds it to that). Every other card is parsed by the grammar.
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass
+from functools import lru_cache
+from importlib import resources
+
+from lark import Lark, Token, Transformer, v_args
+from lark.exceptions import (UnexpectedCharacters, UnexpectedEOF, UnexpectedInput,
+                             UnexpectedToken, VisitError)
+
+from drc.cards import (Assign, Call, Card, ControlCard, DotCard, ElementCard, Expr, Str, Word,
+                       element_card)
+from drc.errors import InputError, Location
+
+
+@dataclass(slots=True)
+class ParsedFile:
+    path: str
+    title: str
+    cards: list[Card]
+    lines: list[str]
+
+
+@lru_cache(maxsize=1)
+def netlist_parser() -> Lark:
+    text = resources.files("drc.grammar").joinpath("netlist.lark").read_text(encoding="utf-8")
+    return Lark(text, parser="lalr", lexer="contextual", start=["netlist", "card"],
+                maybe_placeholders=False)
+
+
+_ASCII_LETTERS = frozenset("abcdefghijklmnopqrstuvwxyzABCDEFGHIJKLMNOPQRSTUVWXYZ")
+# A plain card: words only, none of the characters that open groups, expressions, strings,
+# assignments, comments or separators.
+_PLAIN = re.compile(r"[^\s(){}'\"=,;$]+(?:[ \t\f]+[^\s(){}'\"=,;$]+)*[ \t\f\r]*")
+_TOKEN = re.compile(r"[^ \t\f\r]+")
+
+
+class _ToCards(Transformer):
+    """Turns the grammar's tree into cards; locations are shifted by the card's first line."""
+
+    def __init__(self, path: str, line_offset: int):
+        super().__init__(visit_tokens=False)
+        self.path = path
+        self.line_offset = line_offset
+
+    def _loc(self, token: Token) -> Location:
+        return Location(self.path, token.line + self.line_offset, token.column)
+
+    def word(self, children):
+        (t,) = children
+        return Word(str(t), self._loc(t))
+
+    def expr(self, children):
+        (t,) = children
+        return Expr(str(t)[1:-1], self._loc(t))
+
+    def string(self, children):
+        (t,) = children
+        return Str(str(t)[1:-1], self._loc(t))
+
+    def call(self, children):
+        name, *args = children
+        return Call(Word(str(name), self._loc(name)), tuple(args))
+
+    def assign(self, children):
+        key, value = children
+        return Assign(Word(str(key), self._loc(key)), value)
+
+    def element(self, children):
+        name, *fields = children
+        return element_card(Word(str(name), self._loc(name)), tuple(fields))
+
+    def dot_card(self, children):
+        head, *fields = children
+        word = Word(str(head), self._loc(head))
+        return DotCard(str(head)[1:].lower(), word, tuple(fields))
+
+    def control(self, children):
+        (t,) = children
+        return ControlCard(self._loc(t), str(t))
+
+    def card(self, children):
+        return children[0]
+
+    def netlist(self, children):
+        title = ""
+        cards = []
+        for c in children:
+            if isinstance(c, Token):
+                title = str(c)
+            else:
+                cards.append(c)
+        return title, cards
+
+
+def split_lines(text: str) -> list[str]:
+    """Lines without their ends; CRLF and lone CR read as LF."""
+    if "\r" in text:
+        text = text.replace("\r\n", "\n").replace("\r", "\n")
+    return text.split("\n")
+
+
+def _is_end(stripped: str) -> bool:
+    low = stripped[:5].lower()
+    return low == ".end" and (len(stripped) == 4 or stripped[4] in " \t")
+
+
+def plain_card(line: str, path: str, line_number: int) -> ElementCard | None:
+    """The fast path: the card for a plain one-line element card, or None if it is not plain."""
+    start = len(line) - len(line.lstrip(" \t\f"))
+    if start >= len(line) or line[start] not in _ASCII_LETTERS or _PLAIN.fullmatch(line, start) is None:
+        return None
+    words = [Word(m.group(), Location(path, line_number, m.start() + 1))
+             for m in _TOKEN.finditer(line, start)]
+    return element_card(words[0], tuple(words[1:]))
+
+
+_SIMPLE_CHARS = re.compile(r"[{}'\";$]")
+_SIMPLE_TOKEN = re.compile(r"[^\s(){}'\"=,;$]+|[()=,]")
+
+
+def simple_card(line: str, path: str, line_number: int) -> Card | None:
+    """The second fast path: a one-line card of words, calls and key=value assignments only
+    (no braces, quotes, comments or continuation), or None when the grammar must read it."""
+    start = len(line) - len(line.lstrip(" \t\f"))
+    if start >= len(line) or _SIMPLE_CHARS.search(line, start) is not None:
+        return None
+    tokens = [(m.group(), m.start() + 1) for m in _SIMPLE_TOKEN.finditer(line, start)]
+    tokens = [t for t in tokens if t[0] != ","]
+    head_text = tokens[0][0]
+    if head_text[0] == ".":
+        if not _DOT_NAME.fullmatch(head_text):
+            return None
+    elif head_text[0] not in _ASCII_LETTERS:
+        return None
+    fields, k = _simple_fields(tokens, 1, path, line_number)
+    if fields is None or k != len(tokens):
+        return None
+    head = Word(head_text, Location(path, line_number, tokens[0][1]))
+    if head_text[0] == ".":
+        return DotCard(head_text[1:].lower(), head, tuple(fields))
+    return element_card(head, tuple(fields))
+
+
+_DOT_NAME = re.compile(r"\.[A-Za-z][A-Za-z0-9_]*")
+_PUNCT = frozenset("()=")
+
+
+def _simple_fields(tokens, k, path, line_number):
+    """Fields from tokens[k:] up to an unmatched ')' (as the grammar's `_field*` reads them)."""
+    fields = []
+    n = len(tokens)
+    while k < n:
+        text, column = tokens[k]
+        if text == ")":
+            return fields, k
+        if text in _PUNCT:
+            return None, k
+        word = Word(text, Location(path, line_number, column))
+        nxt = tokens[k + 1][0] if k + 1 < n else None
+        if nxt == "(":
+            args, k = _simple_fields(tokens, k + 2, path, line_number)
+            if args is None or k >= n or tokens[k][0] != ")":
+                return None, k
+            fields.append(Call(word, tuple(args)))
+            k += 1
+        elif nxt == "=":
+            if k + 2 >= n or tokens[k + 2][0] in _PUNCT:
+                return None, k
+            vtext, vcol = tokens[k + 2]
+            value = Word(vtext, Location(path, line_number, vcol))
+            if k + 3 < n and tokens[k + 3][0] == "(":
+                args, k = _simple_fields(tokens, k + 4, path, line_number)
+                if args is None or k >= n or tokens[k][0] != ")":
+                    return None, k
+                fields.append(Assign(word, Call(value, tuple(args))))
+                k += 1
+            else:
+                fields.append(Assign(word, value))
+                k += 3
+        else:
+            fields.append(word)
+            k += 1
+    return fields, k
+
+
+def read_text(text: str, path: str, has_title: bool = True) -> ParsedFile:
+    """Cards of one file. A top netlist's first line is its title; an included file has none."""
+    lines = split_lines(text)
+    title = lines[0] if has_title and lines else ""
+    cards: list[Card] = []
+    n = len(lines)
+    i = 1 if has_title else 0
+    parser = netlist_parser()
+    while i < n:
+        line = lines[i]
+        stripped = line.lstrip(" \t\f")
+        if not stripped or stripped[0] == "*" or stripped[0] == ";":
+            i += 1
+            continue
+        if stripped[0] == "+":
+            raise InputError(Location(path, i + 1, len(line) - len(stripped) + 1),
+                             "a '+' continuation line with no card above it")
+        last = i
+        j = i + 1
+        while j < n:
+            nxt = lines[j].lstrip(" \t\f")
+            if not nxt or nxt[0] == "*":
+                j += 1
+                continue
+            if nxt[0] == "+":
+                last = j
+                j += 1
+                continue
+            break
+        if stripped[0] == ".":
+            if _is_end(stripped):
+                break
+            if stripped[:8].lower() == ".control":
+                end = i + 1
+                while end < n and not lines[end].lstrip().lower().startswith(".endc"):
+                    end += 1
+                if end == n:
+                    raise InputError(Location(path, i + 1, len(line) - len(stripped) + 1),
+                                     "'.control' block with no '.endc'")
+                cards.append(ControlCard(Location(path, i + 1, len(line) - len(stripped) + 1),
+                                         "\n".join(lines[i:end + 1])))
+                i = end + 1
+                continue
+        if last == i:
+            card = plain_card(line, path, i + 1)
+            if card is None:
+                card = simple_card(line, path, i + 1)
+            if card is not None:
+                cards.append(card)
+                i += 1
+                continue
+        cards.append(parse_card("\n".join(lines[i:last + 1]), path, i))
+        i = last + 1
+    return ParsedFile(path, title, cards, lines)
+
+
+def parse_card(text: str, path: str, line_offset: int) -> Card:
+    """One card's text (its continuation lines included) through the grammar."""
+    try:
+        tree = netlist_parser().parse(text, start="card")
+    except UnexpectedInput as error:
+        raise _syntax_error(error, text, path, line_offset) from None
+    return _transform(_ToCards(path, line_offset), tree)
+
+
+def _transform(transformer: Transformer, tree):
+    try:
+        return transformer.transform(tree)
+    except VisitError as error:
+        if isinstance(error.orig_exc, InputError):
+            raise error.orig_exc from None
+        raise
+
+
+def parse_whole(text: str, path: str) -> tuple[str, list[Card]]:
+    """A whole file through the grammar alone (the reference the fast path is tested against)."""
+    try:
+        tree = netlist_parser().parse(text if text.endswith("\n") else text + "\n", start="netlist")
+    except UnexpectedInput as error:
+        raise _syntax_error(error, text, path, 0) from None
+    title, cards = _transform(_ToCards(path, 0), tree)
+    for k, card in enumerate(cards):
+        if type(card) is DotCard and card.keyword == "end":
+            return title, cards[:k]
+    return title, cards
+
+
+def _syntax_error(error: UnexpectedInput, text: str, path: str, line_offset: int) -> InputError:
+    line = getattr(error, "line", 1) or 1
+    column = getattr(error, "column", 1) or 1
+    where = Location(path, line + line_offset, column)
+    opened = _unclosed(text)
+    if opened is not None:
+        char, (oline, ocol) = opened
+        what = {"(": "parenthesis '('", "{": "brace '{'", "'": "quote '", '"': 'quote "'}[char]
+        return InputError(Location(path, oline + line_offset, ocol), f"unclosed {what} opened here")
+    if isinstance(error, UnexpectedCharacters):
+        char = text[error.pos_in_stream] if error.pos_in_stream < len(text) else "?"
+        if char == ")":
+            return InputError(where, "')' with no '(' before it")
+        if char == "}":
+            return InputError(where, "'}' with no '{' before it")
+        return InputError(where, f"unexpected character {char!r}")
+    if isinstance(error, UnexpectedToken):
+        token = error.token
+        if token.type == "$END":
+            return InputError(where, "the card ends too early")
+        shown = str(token).strip() or token.type
+        before = text[:token.start_pos].rstrip() if token.start_pos is not None else ""
+        if before.endswith("="):
+            return InputError(where, "'=' with no value after it")
+        if shown == ")":
+            return InputError(where, "')' with no '(' before it")
+        if shown == "=":
+            return InputError(where, "'=' with no parameter name before it")
+        return InputError(where, f"unexpected {shown!r}")
+    if isinstance(error, UnexpectedEOF):
+        return InputError(where, "the card ends too early")
+    return InputError(where, "syntax error")
+
+
+def _unclosed(text: str):
+    """The first bracket or quote left open in a card's text, with its (line, column)."""
+    stack = []
+    line, col = 1, 0
+    quote = None
+    in_comment = False
+    for ch in text:
+        col += 1
+        if ch == "\n":
+            if quote is not None:
+                return quote
+            in_comment = False
+            line, col = line + 1, 0
+            continue
+        if in_comment:
+            continue
+        if quote is not None:
+            if ch == quote[0]:
+                quote = None
+            continue
+        if ch == ";":
+            in_comment = True
+        elif ch in "'\"":
+            quote = (ch, (line, col))
+        elif ch in "({":
+            stack.append((ch, (line, col)))
+        elif ch == ")" and stack and stack[-1][0] == "(":
+            stack.pop()
+        elif ch == "}" and stack and stack[-1][0] == "{":
+            stack.pop()
+    if quote is not None:
+        return quote
+    if stack:
+        return stack[0] if stack[0][0] == "{" else stack[-1]
+    return None
