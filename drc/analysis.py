@@ -1,0 +1,863 @@
+"""From the flat design and its context to what the rules read: the circuit graph, supplies,
+port pins, LEDs, their branches, and each branch's operating point at every corner.
+
+    design = analyse(flat, context)
+    design.branches[0].current_A["D1"]      # average current at each corner, a numpy array
+
+Everything here is SI floats and numpy arrays over the corners (`design.corners`).
+"""
+
+from __future__ import annotations
+
+import itertools
+import math
+from dataclasses import dataclass, field
+from typing import Any
+
+import networkx as nx
+import numpy as np
+
+from drc import profiles
+from drc.context import Context, PinSpec, SupplySpec
+from drc.design import GROUND, Element, FlatDesign
+from drc.diode import ZERO_CELSIUS_K, DiodeParams, voltage_at_current
+from drc.errors import InputError, InputErrors, Location
+from drc.solve import led_model_from_forward_voltages, solve_string
+
+LED_THRESHOLD_V = 1.4          # a diode dropping at least this at 1 mA is an LED (issue text)
+SERIES_KINDS = frozenset("RLD")
+
+
+# ---------------------------------------------------------------------------- corners
+
+
+@dataclass(frozen=True)
+class Corners:
+    """Every combination of each supply's range ends and nominal, the temperature range's
+    ends and nominal, and the resistor and capacitor tolerance ends. Index `nominal` is the
+    all-nominal corner."""
+
+    supply_V: dict[str, np.ndarray]
+    temperature_C: np.ndarray
+    resistor_factor: np.ndarray
+    capacitor_factor: np.ndarray
+    nominal: int
+
+    @property
+    def count(self) -> int:
+        return int(self.temperature_C.shape[0])
+
+    @property
+    def temperature_K(self) -> np.ndarray:
+        return self.temperature_C + ZERO_CELSIUS_K
+
+    def describe(self, i: int) -> dict:
+        """The corner as the report gives it."""
+        out: dict[str, Any] = {"supply_V": {k: round(float(v[i]), 6) for k, v in self.supply_V.items()},
+                               "temperature_C": round(float(self.temperature_C[i]), 6)}
+        rf = float(self.resistor_factor[i])
+        if rf != 1.0:
+            out["resistor_tolerance"] = f"{(rf - 1) * 100:+g} %"
+        cf = float(self.capacitor_factor[i])
+        if cf != 1.0:
+            out["capacitor_tolerance"] = f"{(cf - 1) * 100:+g} %"
+        return out
+
+    def words(self, i: int) -> str:
+        """The corner in words: "VBAT 2.00 V, -20 °C, resistors -5 %"."""
+        parts = [f"{k} {float(v[i]):.2f} V" for k, v in self.supply_V.items()]
+        parts.append(f"{float(self.temperature_C[i]):g} °C")
+        rf = float(self.resistor_factor[i])
+        if rf != 1.0:
+            parts.append(f"resistors {(rf - 1) * 100:+g} %")
+        return ", ".join(parts)
+
+
+def _three(low: float, nominal: float, high: float) -> list[float]:
+    out = []
+    for v in (low, nominal, high):
+        if not any(abs(v - w) < 1e-12 for w in out):
+            out.append(v)
+    return out
+
+
+def make_corners(supplies: dict[str, "Supply"], context: Context, with_capacitors: bool) -> Corners:
+    axes = []
+    nominal_index = []
+    for s in supplies.values():
+        values = _three(s.low_V, s.nominal_V, s.high_V)
+        axes.append(values)
+        nominal_index.append(values.index(next(v for v in values if abs(v - s.nominal_V) < 1e-12)))
+    t_lo, t_hi = context.temperature_C
+    t_nom = context.nominal_temperature_C
+    temps = _three(t_lo, t_nom, t_hi)
+    axes.append(temps)
+    nominal_index.append(temps.index(next(v for v in temps if abs(v - t_nom) < 1e-12)))
+    rt = context.resistor_tolerance
+    rfs = _three(1 - rt, 1.0, 1 + rt)
+    axes.append(rfs)
+    nominal_index.append(rfs.index(1.0))
+    ct = context.capacitor_tolerance if with_capacitors else 0.0
+    cfs = _three(1 - ct, 1.0, 1 + ct)
+    axes.append(cfs)
+    nominal_index.append(cfs.index(1.0))
+    grid = np.array(list(itertools.product(*axes)), dtype=float).reshape(-1, len(axes))
+    shape = [len(a) for a in axes]
+    nominal = int(np.ravel_multi_index(nominal_index, shape))
+    labels = list(supplies)
+    return Corners(supply_V={label: grid[:, k].copy() for k, label in enumerate(labels)},
+                   temperature_C=grid[:, len(labels)].copy(),
+                   resistor_factor=grid[:, len(labels) + 1].copy(),
+                   capacitor_factor=grid[:, len(labels) + 2].copy(), nominal=nominal)
+
+
+# ---------------------------------------------------------------------------- parts
+
+
+@dataclass
+class Supply:
+    """A rail: a DC source to ground, or a net the config names."""
+
+    label: str
+    net: str
+    source: str | None              # the voltage source's name, if one sets it
+    low_V: float
+    nominal_V: float
+    high_V: float
+    battery: str | None
+    configured: bool
+    location: Location
+    package_current_A: float | None = None
+    voltage_V: np.ndarray = field(default_factory=lambda: np.zeros(0))   # at every corner
+
+    @property
+    def lithium(self) -> bool:
+        return self.battery is not None and self.battery.lower() in ("lithium-coin", "li-ion", "lifepo4")
+
+
+@dataclass
+class Pin:
+    """A port pin: a source that models it, or a net a black-box part drives."""
+
+    label: str
+    net: str
+    source: str | None
+    supply: str | None              # the label of the rail that powers it
+    output_resistance_ohm: float
+    max_current_A: float
+    drive: str                      # "high", "low", "toggle", "input"
+    frequency_Hz: float | None
+    duty: float                     # share of the period spent high
+    start_s: float                  # when, within the period, the high phase begins
+    configured: bool
+    location: Location
+    clamp_above_supply_V: float = 0.3
+    clamp_current_A: float = 0.005
+    high_V: np.ndarray = field(default_factory=lambda: np.zeros(0))       # at every corner
+
+    @property
+    def period_s(self) -> float | None:
+        return 1.0 / self.frequency_Hz if self.frequency_Hz else None
+
+    def high_share_with(self, other: "Pin", other_high: bool) -> float:
+        """Share of time this pin is high while `other` is high (other_high) or low."""
+        mine = self._high_mask()
+        theirs = other._high_mask(self)
+        if mine is None or theirs is None:
+            a = self.duty if self.drive == "toggle" else (1.0 if self.drive == "high" else 0.0)
+            b = other.duty if other.drive == "toggle" else (1.0 if other.drive == "high" else 0.0)
+            return a * (b if other_high else 1 - b)
+        return float(np.mean(mine & (theirs if other_high else ~theirs)))
+
+    def _high_mask(self, reference: "Pin | None" = None):
+        samples = 2048
+        if self.drive != "toggle":
+            return np.full(samples, self.drive == "high")
+        ref = reference if reference is not None and reference.drive == "toggle" else self
+        if ref.frequency_Hz != self.frequency_Hz:
+            return None
+        t = (np.arange(samples) + 0.5) / samples / self.frequency_Hz
+        return ((t - self.start_s) % (1.0 / self.frequency_Hz)) < self.duty / self.frequency_Hz
+
+
+@dataclass
+class Led:
+    element: Element
+    colour: str
+    params: DiodeParams
+    visible_current_A: float
+    max_current_A: float
+    max_reverse_V: float
+    eye_safety: bool
+    model_from: str                 # "netlist" or "default"
+
+    @property
+    def name(self) -> str:
+        return self.element.name
+
+
+@dataclass
+class Phase:
+    """One part of the drive's period: its share, and the drive voltage and the resistance
+    outside the branch's own resistors (pins' output resistance) at every corner."""
+
+    share: float
+    drive_V: np.ndarray
+    extra_resistance_ohm: float
+    words: str                      # "PA6 high", "PB1 low", "always"
+
+
+@dataclass
+class Branch:
+    """An LED string: from its drive end through resistors and diodes to its return."""
+
+    id: str
+    leds: list[Led]
+    stages: list[list[Element]]     # diodes in series order; each stage's diodes in parallel
+    elements: list[Element]         # every element of the path, drive end first
+    resistors: list[Element]
+    nets: list[str]
+    anode_net: str
+    cathode_net: str
+    drive: str                      # "rail", "pin", "pump", "unknown"
+    source: str | None              # the supply's or pin's label (or pump id)
+    supply: Supply | None = None
+    pin: Pin | None = None          # a pin at the anode end (sourcing)
+    sink_pin: Pin | None = None     # a pin at the cathode end (sinking)
+    reversed: bool = False          # the string points from its return toward its drive
+    note: str | None = None
+    phases: list[Phase] = field(default_factory=list)
+    series_resistance_ohm: np.ndarray | None = None
+    current_A: dict[str, np.ndarray] = field(default_factory=dict)        # average, per LED
+    peak_current_A: dict[str, np.ndarray] = field(default_factory=dict)   # brightest phase
+    forward_V: dict[str, np.ndarray] = field(default_factory=dict)        # in that phase
+    reverse_V: dict[str, np.ndarray] = field(default_factory=dict)        # greatest, any phase
+    pin_current_A: dict[str, np.ndarray] = field(default_factory=dict)    # per pin label, peak
+    lit_phase: int = 0
+
+    @property
+    def led(self) -> Led:
+        return self.leds[0]
+
+    @property
+    def unlimited(self) -> bool:
+        return not self.resistors
+
+    def on_drive(self) -> tuple[np.ndarray, np.ndarray]:
+        """Drive voltage and total resistance in the lit phase (for fixes and messages)."""
+        phase = self.phases[self.lit_phase]
+        return phase.drive_V, self.series_resistance_ohm + phase.extra_resistance_ohm
+
+
+@dataclass
+class Design:
+    """The analysed design, read-only, as every rule receives it."""
+
+    path: str
+    title: str
+    flat: FlatDesign
+    context: Context
+    graph: nx.MultiGraph
+    terminals: dict[str, list[tuple[Element, int]]]
+    supplies: dict[str, Supply]
+    pins: dict[str, Pin]
+    leds: dict[str, Led]
+    branches: list[Branch]
+    corners: Corners
+    assumptions: list[str]
+    notes: list[tuple[Location, str]]
+    pumps: list = field(default_factory=list)
+
+    @property
+    def elements(self) -> list[Element]:
+        return self.flat.elements
+
+    @property
+    def nets(self) -> list[str]:
+        return self.flat.nets
+
+    @property
+    def models(self):
+        return self.flat.models
+
+    @property
+    def value_notes(self):
+        return self.flat.value_notes
+
+    def element(self, name: str) -> Element | None:
+        return self.flat.element(name)
+
+    def connections(self, net: str) -> list[tuple[Element, int]]:
+        """(element, terminal index) for every terminal on the net."""
+        return self.terminals.get(net, [])
+
+    def supply_of_net(self, net: str) -> Supply | None:
+        return next((s for s in self.supplies.values() if s.net == net), None)
+
+    def pin_of_net(self, net: str) -> Pin | None:
+        return next((p for p in self.pins.values() if p.net == net), None)
+
+
+# ---------------------------------------------------------------------------- analysis
+
+
+class _Assumptions:
+    """Assumptions in plain words; the same words for many parts are said once."""
+
+    def __init__(self):
+        self.by_text: dict[str, list[str]] = {}
+        self.plain: list[str] = []
+
+    def add(self, text: str, part: str | None = None):
+        if part is None:
+            if text not in self.plain:
+                self.plain.append(text)
+            return
+        self.by_text.setdefault(text, []).append(part)
+
+    def lines(self) -> list[str]:
+        out = list(self.plain)
+        for text, parts in self.by_text.items():
+            if len(parts) > 4:
+                names = ", ".join(parts[:3]) + f" and {len(parts) - 3} more"
+            else:
+                names = ", ".join(parts)
+            out.append(f"{names}: {text}")
+        return out
+
+
+def _closest(word: str, choices) -> str:
+    import difflib
+    close = difflib.get_close_matches(word.lower(), [c.lower() for c in choices], n=1)
+    return f"; did you mean '{close[0]}'?" if close else ""
+
+
+def _resolve_target(flat: FlatDesign, spec, kind: str) -> tuple[Element | None, str | None]:
+    """The voltage source or net a [supply]/[pin] table names (source=, net=, else its label)."""
+    if spec.source is not None:
+        e = flat.element(spec.source)
+        if e is None or e.kind != "V":
+            raise InputError(spec.location, f"[{kind}.{spec.label}] source '{spec.source}' is not a "
+                             f"voltage source in {flat.path}{_closest(spec.source, [x.name for x in flat.elements if x.kind == 'V'])}")
+        return e, None
+    if spec.net is not None:
+        net = spec.net.lower()
+        if net not in flat.nets:
+            raise InputError(spec.location, f"[{kind}.{spec.label}] net '{spec.net}' is not in "
+                             f"{flat.path}{_closest(net, flat.nets)}")
+        return None, net
+    e = flat.element(spec.label)
+    if e is not None and e.kind == "V":
+        return e, None
+    if spec.label.lower() in flat.nets:
+        return None, spec.label.lower()
+    raise InputError(spec.location, f"[{kind}.{spec.label}] names no voltage source or net "
+                     f"'{spec.label}' in {flat.path} (give source = or net =)"
+                     f"{_closest(spec.label, [x.name for x in flat.elements if x.kind == 'V'] + flat.nets)}")
+
+
+def _source_net(e: Element) -> tuple[str | None, float]:
+    """For a source with one side on ground: its other net and the sign of its voltage there."""
+    a, b = e.nodes
+    if b == GROUND and a != GROUND:
+        return a, 1.0
+    if a == GROUND and b != GROUND:
+        return b, -1.0
+    return None, 1.0
+
+
+def analyse(flat: FlatDesign, context: Context) -> Design:
+    """The analysed design: parts found, branches traced and solved at every corner."""
+    assumptions = _Assumptions()
+    notes: list[tuple[Location, str]] = []
+    errors: list[InputError] = []
+    terminals: dict[str, list[tuple[Element, int]]] = {}
+    graph = nx.MultiGraph()
+    graph.add_nodes_from(flat.nets)
+    for e in flat.elements:
+        for k, n in enumerate(e.nodes):
+            terminals.setdefault(n, []).append((e, k))
+        if len(e.nodes) == 2:
+            graph.add_edge(e.nodes[0], e.nodes[1], key=e.key, element=e)
+        elif e.nodes:
+            graph.add_node(("part", e.key), element=e)
+            for n in e.nodes:
+                graph.add_edge(("part", e.key), n, key=e.key, element=e)
+
+    supplies: dict[str, Supply] = {}
+    claimed: set[str] = set()
+    pin_sources = set()
+    for spec in context.pins.values():
+        try:
+            e, _ = _resolve_target(flat, spec, "pin")
+        except InputError as error:
+            errors.append(error)
+            continue
+        if e is not None:
+            pin_sources.add(e.key)
+
+    for spec in context.supplies.values():
+        try:
+            supplies[spec.label] = _configured_supply(flat, spec, assumptions)
+        except InputError as error:
+            errors.append(error)
+            continue
+        if supplies[spec.label].source:
+            claimed.add(supplies[spec.label].source.lower())
+    for e in flat.elements:
+        if e.kind != "V" or e.key in claimed or e.key in pin_sources:
+            continue
+        if e.source is not None and e.source.waveform is not None:
+            continue
+        net, sign = _source_net(e)
+        if net is None or e.value is None or e.value == 0:
+            continue
+        v = sign * e.value
+        if any(s.net == net for s in supplies.values()):
+            continue
+        supplies[e.name] = Supply(e.name, net, e.name, v, v, v, None, False, e.location)
+        assumptions.add(f"no [supply] table, checked at its DC value {v:g} V only", e.name)
+
+    pins: dict[str, Pin] = {}
+    for spec in context.pins.values():
+        try:
+            pin = _configured_pin(flat, spec, supplies, assumptions)
+        except InputError as error:
+            errors.append(error)
+            continue
+        pins[spec.label] = pin
+    for e in flat.elements:
+        if e.kind != "V" or e.key in pin_sources or e.key in claimed:
+            continue
+        if e.source is None or e.source.waveform is None or e.source.waveform.kind != "pulse":
+            continue
+        if any(p.source and p.source.lower() == e.key for p in pins.values()):
+            continue
+        pin = _pulse_pin(e, None, supplies, assumptions)
+        if pin is not None:
+            pins[e.name] = pin
+    if errors:
+        raise InputErrors(errors)
+
+    corners = make_corners(supplies, context, with_capacitors=True)
+    for s in supplies.values():
+        s.voltage_V = corners.supply_V[s.label]
+    for p in pins.values():
+        if p.supply is not None and p.supply in supplies:
+            p.high_V = supplies[p.supply].voltage_V
+        else:
+            p.high_V = np.full(corners.count, p.high_V if np.ndim(p.high_V) == 0 else float(p.high_V[0])) \
+                if np.size(p.high_V) else np.zeros(corners.count)
+
+    leds = _find_leds(flat, context, assumptions)
+    branches = _trace_branches(flat, terminals, supplies, pins, leds, corners, notes)
+    design = Design(path=flat.path, title=flat.title, flat=flat, context=context, graph=graph,
+                    terminals=terminals, supplies=supplies, pins=pins, leds=leds,
+                    branches=branches, corners=corners, assumptions=[], notes=notes)
+    for b in branches:
+        solve_branch(b, corners, flat)
+    design.assumptions = list(context.assumptions) + assumptions.lines()
+    return design
+
+
+def _configured_supply(flat: FlatDesign, spec: SupplySpec, assumptions: _Assumptions) -> Supply:
+    e, net = _resolve_target(flat, spec, "supply")
+    dc = None
+    source = None
+    if e is not None:
+        net, sign = _source_net(e)
+        if net is None:
+            raise InputError(spec.location, f"[supply.{spec.label}] source '{e.name}' has no side on ground")
+        dc = sign * e.value if e.value is not None else None
+        source = e.name
+    nominal, why = spec.nominal_at(dc)
+    if why:
+        assumptions.add(why)
+    low, high = spec.low_V, spec.high_V
+    if low is None or high is None:
+        if nominal is None:
+            raise InputError(spec.location, f"[supply.{spec.label}] gives no range, battery or "
+                             "nominal, and its net has no DC source: give range = [\"low V\", \"high V\"]")
+        low = high = nominal
+    return Supply(spec.label, net, source, low, nominal, high, spec.battery, True, spec.location,
+                  spec.package_current_A)
+
+
+def _pulse_timing(e: Element) -> tuple[float, float, float, float]:
+    """(high level, low level, frequency, duty, start) of a PULSE source: v1 v2 td tr tf pw per."""
+    args = list(e.source.waveform.args) + [0.0] * 7
+    v1, v2, td, tr, tf, pw, per = args[:7]
+    if per <= 0:
+        raise InputError(e.location, f"{e.name}: PULSE has no period; a toggling pin needs one")
+    if v2 >= v1:
+        high, low = v2, v1
+        start = td + tr / 2
+        width = pw + (tr + tf) / 2
+    else:
+        high, low = v1, v2
+        start = td + tr + pw + tf / 2
+        width = per - pw - (tr + tf) / 2
+    return high, low, 1.0 / per, min(max(width / per, 0.0), 1.0), start % per
+
+
+def _pulse_pin(e: Element, spec: PinSpec | None, supplies: dict[str, Supply],
+               assumptions: _Assumptions) -> Pin | None:
+    net, sign = _source_net(e)
+    if net is None:
+        return None
+    high, low, frequency, duty, start = _pulse_timing(e)
+    profile = profiles.pin_default()
+    supply = spec.supply if spec is not None else None
+    if supply is None:
+        if len(supplies) == 1:
+            supply = next(iter(supplies))
+            assumptions.add(f"a PULSE source with no [pin] table: a toggling port pin powered by "
+                            f"{supply}, built-in pin profile ({profile.output_resistance_ohm:g} Ω, "
+                            f"{profile.max_current_A * 1e3:g} mA; from memory)", e.name)
+        else:
+            match = [s.label for s in supplies.values() if abs(s.nominal_V - high) <= 0.05 * max(high, 1e-9)]
+            supply = match[0] if len(match) == 1 else None
+            assumptions.add("a PULSE source with no [pin] table: a toggling port pin "
+                            + (f"powered by {supply} (its level matches)" if supply else
+                               f"with its PULSE level {high:g} V as its supply")
+                            + f", built-in pin profile ({profile.output_resistance_ohm:g} Ω, "
+                            f"{profile.max_current_A * 1e3:g} mA; from memory)", e.name)
+    pin = Pin(label=spec.label if spec else e.name, net=net, source=e.name, supply=supply,
+              output_resistance_ohm=spec.output_resistance_ohm if spec else profile.output_resistance_ohm,
+              max_current_A=spec.max_current_A if spec else profile.max_current_A,
+              drive="toggle", frequency_Hz=frequency, duty=duty, start_s=start,
+              configured=spec is not None, location=spec.location if spec else e.location,
+              clamp_above_supply_V=spec.clamp_above_supply_V if spec else profile.clamp_above_supply_V,
+              clamp_current_A=spec.clamp_current_A if spec else profile.clamp_current_A)
+    pin.high_V = np.array(high)
+    return pin
+
+
+def _configured_pin(flat: FlatDesign, spec: PinSpec, supplies: dict[str, Supply],
+                    assumptions: _Assumptions) -> Pin:
+    e, net = _resolve_target(flat, spec, "pin")
+    if spec.supply is not None and spec.supply not in supplies:
+        match = [s for s in supplies.values() if s.label.lower() == spec.supply.lower()
+                 or (s.source or "").lower() == spec.supply.lower() or s.net == spec.supply.lower()]
+        if not match:
+            raise InputError(spec.location, f"[pin.{spec.label}] supply '{spec.supply}' is no supply"
+                             f"{_closest(spec.supply, list(supplies))}")
+        spec_supply = match[0].label
+    else:
+        spec_supply = spec.supply
+    if e is not None:
+        if e.source is not None and e.source.waveform is not None and e.source.waveform.kind == "pulse":
+            pin = _pulse_pin(e, spec, supplies, assumptions)
+            if pin is None:
+                raise InputError(spec.location, f"[pin.{spec.label}] source '{e.name}' has no side on ground")
+            pin.supply = spec_supply or pin.supply
+            return pin
+        net, sign = _source_net(e)
+        if net is None:
+            raise InputError(spec.location, f"[pin.{spec.label}] source '{e.name}' has no side on ground")
+        level = sign * (e.value or 0.0)
+        drive = "high" if level > 0 else "low"
+        pin = Pin(spec.label, net, e.name, spec_supply, spec.output_resistance_ohm, spec.max_current_A,
+                  drive, None, 1.0 if drive == "high" else 0.0, 0.0, True, spec.location,
+                  spec.clamp_above_supply_V, spec.clamp_current_A)
+        pin.high_V = np.array(level if level > 0 else 0.0)
+        if spec_supply is None and drive == "high":
+            assumptions.add(f"[pin.{spec.label}]: no supply named; its source's {level:g} V is its high level")
+        return pin
+    drive = spec.drive or "high"
+    if spec_supply is None:
+        if len(supplies) == 1:
+            spec_supply = next(iter(supplies))
+            assumptions.add(f"[pin.{spec.label}]: no supply named; powered by {spec_supply}, the only rail")
+        elif drive != "input":
+            raise InputError(spec.location, f"[pin.{spec.label}] drives net '{net}' but names no supply "
+                             f"(supply = one of {', '.join(supplies) or 'none'})")
+    duty = spec.duty if spec.duty is not None else (0.5 if drive == "toggle" else
+                                                   (1.0 if drive == "high" else 0.0))
+    start = 0.0
+    if drive == "toggle" and spec.phase == "inverted" and spec.frequency_Hz:
+        start = 0.5 / spec.frequency_Hz
+    pin = Pin(spec.label, net, None, spec_supply, spec.output_resistance_ohm, spec.max_current_A,
+              drive, spec.frequency_Hz, duty, start, True, spec.location,
+              spec.clamp_above_supply_V, spec.clamp_current_A)
+    pin.high_V = np.array(0.0)
+    return pin
+
+
+def _find_leds(flat: FlatDesign, context: Context, assumptions: _Assumptions) -> dict[str, Led]:
+    leds: dict[str, Led] = {}
+    nominal_K = context.nominal_temperature_C + ZERO_CELSIUS_K
+    for e in flat.elements:
+        if e.kind != "D":
+            continue
+        model = flat.models.get(e.model) if e.model else None
+        params = diode_params(flat, e)
+        spec = context.led(e.name, model.name if model else None)
+        usable = model is not None and any(k in model.params for k in ("is", "n", "rs"))
+        vf = float(voltage_at_current(params, 1e-3, nominal_K))
+        if spec is None and not (usable and vf >= LED_THRESHOLD_V):
+            continue
+        colour = spec.colour if spec is not None else None
+        if colour is None:
+            if usable:
+                colour = profiles.infer_colour(vf)
+                assumptions.add(f"colour taken as {colour} from its forward voltage "
+                                f"{vf:.2f} V at 1 mA", e.name)
+            else:
+                colour = "red"
+                assumptions.add("named as an LED but with no usable .model and no colour: "
+                                "taken as red", e.name)
+        profile = profiles.led(colour)
+        model_from = "netlist"
+        if not usable:
+            params = led_model_from_forward_voltages(profile.vf_1mA_V, profile.vf_20mA_V,
+                                                     profile.tempco_V_per_K)
+            model_from = "default"
+            assumptions.add(f"no usable .model: the built-in {colour} LED ({profile.vf_1mA_V:g} V at "
+                            f"1 mA, {profile.vf_20mA_V:g} V at 20 mA; from memory)", e.name)
+        visible = spec.visible_current_A if spec and spec.visible_current_A is not None else None
+        maximum = spec.max_current_A if spec and spec.max_current_A is not None else None
+        reverse = spec.max_reverse_V if spec and spec.max_reverse_V is not None else None
+        missing = [w for w, v in (("visible", visible), ("max", maximum), ("reverse", reverse)) if v is None]
+        if missing:
+            assumptions.add(f"{colour} LED ratings from the built-in profile: "
+                            f"visible {profile.visible_current_A * 1e3:g} mA, max "
+                            f"{profile.max_current_A * 1e3:g} mA, reverse {profile.max_reverse_V:g} V "
+                            "(common practice)", e.name)
+        leds[e.key] = Led(e, colour, params,
+                          visible if visible is not None else profile.visible_current_A,
+                          maximum if maximum is not None else profile.max_current_A,
+                          reverse if reverse is not None else profile.max_reverse_V,
+                          profile.eye_safety, model_from)
+    return leds
+
+
+def _is_wire(e: Element) -> bool:
+    """A zero-volt source in series is an ammeter: a wire for the analysis."""
+    return e.kind == "V" and (e.value or 0.0) == 0.0 and (e.source is None or e.source.waveform is None)
+
+
+def _trace_branches(flat, terminals, supplies, pins, leds, corners, notes) -> list[Branch]:
+    rail_nets = {s.net: s for s in supplies.values()}
+    pin_nets = {p.net: p for p in pins.values()}
+    stops = set(rail_nets) | set(pin_nets) | {GROUND}
+    seen: set[str] = set()
+    branches = []
+
+    def other(e: Element, net: str) -> str:
+        return e.nodes[1] if e.nodes[0] == net else e.nodes[0]
+
+    def parallel_group(led_el: Element, net_a: str, net_k: str) -> list[Element]:
+        group = [led_el]
+        for e, _ in terminals.get(net_a, []):
+            if e is led_el or e.key not in leds or e.key in seen:
+                continue
+            if e.nodes[0] == net_a and e.nodes[1] == net_k:
+                group.append(e)
+        return group
+
+    def walk(net: str, came: set[str], toward_anode: bool):
+        """From a net outward through series elements; returns (end net, path, stages)."""
+        path, stages = [], []
+        guard = 0
+        while net not in stops and guard < 10000:
+            guard += 1
+            conns = [(e, k) for e, k in terminals.get(net, []) if e.key not in came]
+            if len(conns) != 1:
+                # LEDs in parallel sharing both nets with the path are handled by the caller
+                break
+            e, k = conns[0]
+            if len(e.nodes) != 2 or not (e.kind in SERIES_KINDS or _is_wire(e)):
+                break
+            came.add(e.key)
+            nxt = other(e, net)
+            path.append(e)
+            if e.kind == "D":
+                # a diode in the string: it conducts from its anode (node 0) to its cathode
+                stages.append([e])
+            net = nxt
+        return net, path, stages
+
+    for key, led in leds.items():
+        if key in seen:
+            continue
+        e = led.element
+        a, k = e.nodes
+        group = parallel_group(e, a, k)
+        came = {g.key for g in group}
+        anode_end, up_path, up_stages = walk(a, set(came), True)
+        came2 = came | {x.key for x in up_path}
+        cathode_end, down_path, down_stages = walk(k, came2, False)
+        # drive end first: the anode side reversed, then the LED stage, then the cathode side
+        path = list(reversed(up_path)) + group + down_path
+        stages = list(reversed(up_stages)) + [group] + down_stages
+        diode_keys = [d.key for st in stages for d in st]
+        seen.update(d for d in diode_keys if d in leds)
+        # a diode in the path must point along the string
+        string_leds = [leds[d] for d in diode_keys if d in leds]
+        resistors = [x for x in path if x.kind == "R"]
+        nets = sorted({n for x in path for n in x.nodes})
+        branch = Branch(id=e.name, leds=string_leds, stages=stages, elements=path,
+                        resistors=resistors, nets=nets, anode_net=anode_end,
+                        cathode_net=cathode_end, drive="unknown", source=None)
+        _classify(branch, rail_nets, pin_nets, corners)
+        if branch.drive == "unknown" and branch.note is None:
+            branch.note = (f"{e.name}'s string runs from net {anode_end} to net {cathode_end}; "
+                           "neither end is a rail, a port pin or ground")
+        if branch.note:
+            notes.append((e.location, branch.note))
+        branches.append(branch)
+    return branches
+
+
+def _end_voltage(net: str, rail_nets, pin_nets):
+    if net == GROUND:
+        return "ground", None
+    if net in rail_nets:
+        return "rail", rail_nets[net]
+    if net in pin_nets:
+        return "pin", pin_nets[net]
+    return "other", None
+
+
+def _classify(b: Branch, rail_nets, pin_nets, corners: Corners) -> None:
+    count = corners.count
+    zero = np.zeros(count)
+    a_kind, a_part = _end_voltage(b.anode_net, rail_nets, pin_nets)
+    k_kind, k_part = _end_voltage(b.cathode_net, rail_nets, pin_nets)
+    # the orientation: a string whose anode end sits at ground and cathode at a rail or pin
+    # is reversed: it never conducts, and takes the rail's voltage in reverse
+    if a_kind == "ground" and k_kind in ("rail", "pin"):
+        b.reversed = True
+        a_kind, a_part, k_kind, k_part = k_kind, k_part, a_kind, a_part
+    if a_kind == "other" or k_kind == "other" or (a_kind == "ground" and k_kind == "ground"):
+        if a_kind == "ground" and k_kind == "ground":
+            b.note = f"{b.id}'s string has both ends on ground"
+        return
+    sign = -1.0 if b.reversed else 1.0
+
+    def level(kind, part, high: bool):
+        if kind == "ground":
+            return zero
+        if kind == "rail":
+            return part.voltage_V
+        return part.high_V if high else zero
+
+    def resistance(kind, part):
+        return part.output_resistance_ohm if kind == "pin" else 0.0
+
+    a_states = [True, False] if a_kind == "pin" else [True]
+    k_states = [True, False] if k_kind == "pin" else [True]
+    phases = []
+    for ah in a_states:
+        for kh in k_states:
+            share = _share(a_kind, a_part, ah, k_kind, k_part, kh)
+            if share <= 0:
+                continue
+            v = sign * (level(a_kind, a_part, ah) - level(k_kind, k_part, kh))
+            words = " and ".join(w for w in (
+                f"{a_part.label} {'high' if ah else 'low'}" if a_kind == "pin" else "",
+                f"{k_part.label} {'high' if kh else 'low'}" if k_kind == "pin" else "") if w) or "always"
+            phases.append(Phase(share, v, resistance(a_kind, a_part) + resistance(k_kind, k_part), words))
+    if not phases:
+        b.note = f"{b.id}: its pins are never in a state that drives it"
+        return
+    b.phases = phases
+    if a_kind == "pin":
+        b.drive, b.pin, b.source = "pin", a_part, a_part.label
+        if a_part.drive == "input":
+            b.note = f"{b.id} hangs on pin {a_part.label}, configured as an input"
+    elif k_kind == "pin":
+        b.drive, b.sink_pin, b.source = "pin", k_part, k_part.label
+    else:
+        b.drive, b.supply, b.source = "rail", a_part, a_part.label
+    if a_kind == "rail":
+        b.supply = a_part
+    if k_kind == "pin" and a_kind == "pin":
+        b.sink_pin = k_part
+    if k_kind == "rail" and a_kind != "rail":
+        b.supply = k_part
+
+
+def _share(a_kind, a_part, a_high, k_kind, k_part, k_high) -> float:
+    def alone(pin: Pin, high: bool) -> float:
+        if pin.drive == "toggle":
+            return pin.duty if high else 1 - pin.duty
+        if pin.drive == "input":
+            return 0.0
+        return 1.0 if (pin.drive == "high") == high else 0.0
+    if a_kind == "pin" and k_kind == "pin":
+        if a_part.drive == "input" or k_part.drive == "input":
+            return 0.0
+        share = a_part.high_share_with(k_part, k_high)
+        return share if a_high else (alone(k_part, k_high) - share)
+    if a_kind == "pin":
+        return alone(a_part, a_high)
+    if k_kind == "pin":
+        return alone(k_part, k_high)
+    return 1.0
+
+
+def diode_params(flat: FlatDesign, e: Element) -> DiodeParams:
+    """A diode element's SPICE parameters from its .model (SPICE defaults where none)."""
+    model = flat.models.get(e.model) if e.model else None
+    return DiodeParams.from_model(model.params if model else {}, e.value or 1.0)
+
+
+def solve_branch(b: Branch, corners: Corners, flat: FlatDesign) -> None:
+    """Operating point of a branch in each phase of its drive, at every corner."""
+    if not b.phases:
+        return
+    r = sum((x.value or 0.0) for x in b.resistors) * corners.resistor_factor
+    b.series_resistance_ohm = np.asarray(r, dtype=float) * np.ones(corners.count)
+    t = corners.temperature_K
+    led_params = {l.element.key: l.params for l in b.leds}
+    stages = []
+    for st in b.stages:
+        stage = []
+        for d in st:
+            if d.key in led_params:
+                stage.append(led_params[d.key])
+            else:
+                stage.append(diode_params(flat, d))
+        stages.append(stage)
+    average = {l.name: np.zeros(corners.count) for l in b.leds}
+    peak = {l.name: np.zeros(corners.count) for l in b.leds}
+    forward = {l.name: np.zeros(corners.count) for l in b.leds}
+    reverse = {l.name: np.zeros(corners.count) for l in b.leds}
+    pin_peak: dict[str, np.ndarray] = {}
+    best_share_current = -1.0
+    for index, phase in enumerate(b.phases):
+        sol = solve_string(phase.drive_V, b.series_resistance_ohm + phase.extra_resistance_ohm,
+                           stages, t)
+        total = np.maximum(sol.current_A, 0.0)
+        for si, st in enumerate(b.stages):
+            for di, d in enumerate(st):
+                if d.key not in led_params:
+                    continue
+                name = d.name
+                i = np.maximum(sol.diode_current_A[si][di], 0.0)
+                average[name] += phase.share * i
+                brighter = i > peak[name]
+                forward[name] = np.where(brighter, sol.forward_V[si][di], forward[name])
+                peak[name] = np.maximum(peak[name], i)
+                reverse[name] = np.maximum(reverse[name], -np.minimum(phase.drive_V, 0.0))
+        nominal_current = float(total[corners.nominal])
+        if nominal_current > best_share_current:
+            best_share_current = nominal_current
+            b.lit_phase = index
+        for pin in (b.pin, b.sink_pin):
+            if pin is not None:
+                pin_peak[pin.label] = np.maximum(pin_peak.get(pin.label, np.zeros(corners.count)), total)
+    if b.reversed:
+        for name in average:
+            average[name][:] = 0.0
+            peak[name][:] = 0.0
+    b.current_A, b.peak_current_A, b.forward_V, b.reverse_V = average, peak, forward, reverse
+    b.pin_current_A = pin_peak
+
+
+def low_nominal_high(values: np.ndarray, nominal: int) -> dict[str, float]:
+    """The contract's {low, nominal, high} of a per-corner array."""
+    return {"low": float(np.min(values)), "nominal": float(values[nominal]),
+            "high": float(np.max(values))}

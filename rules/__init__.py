@@ -1,0 +1,1 @@
+"""The built-in rules: one module each, written against drc.api exactly as a house rule is."""
