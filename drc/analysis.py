@@ -205,6 +205,7 @@ class Phase:
     drive_V: np.ndarray
     extra_resistance_ohm: float
     words: str                      # "PA6 high", "PB1 low", "always"
+    pin_states: dict = field(default_factory=dict)   # for a network: pin label -> high?
 
 
 @dataclass
@@ -234,6 +235,8 @@ class Branch:
     reverse_V: dict[str, np.ndarray] = field(default_factory=dict)        # greatest, any phase
     pin_current_A: dict[str, np.ndarray] = field(default_factory=dict)    # per pin label, peak
     lit_phase: int = 0
+    network: "Any" = None           # a region that is not a plain string: solved as a network
+    network_pins: list = field(default_factory=list)
 
     @property
     def led(self) -> Led:
@@ -656,27 +659,44 @@ def _trace_branches(flat, terminals, supplies, pins, leds, corners, notes) -> li
                 group.append(e)
         return group
 
-    def walk(net: str, came: set[str], toward_anode: bool):
+    def walk(net: str, came: set[str]):
         """From a net outward through series elements; returns (end net, path, stages)."""
         path, stages = [], []
-        guard = 0
-        while net not in stops and guard < 10000:
-            guard += 1
+        while net not in stops:
             conns = [(e, k) for e, k in terminals.get(net, []) if e.key not in came]
             if len(conns) != 1:
-                # LEDs in parallel sharing both nets with the path are handled by the caller
                 break
             e, k = conns[0]
             if len(e.nodes) != 2 or not (e.kind in SERIES_KINDS or _is_wire(e)):
                 break
             came.add(e.key)
-            nxt = other(e, net)
             path.append(e)
             if e.kind == "D":
-                # a diode in the string: it conducts from its anode (node 0) to its cathode
                 stages.append([e])
-            net = nxt
+            net = other(e, net)
         return net, path, stages
+
+    def region(start: Element):
+        """The nets reachable from an LED through R, L, D, C and wires, short of rails, pins
+        and ground; the elements on them; and what, if anything, makes it unsolvable here."""
+        nets, elements, problem = set(), {start.key: start}, None
+        todo = [n for n in start.nodes if n not in stops]
+        nets.update(todo)
+        while todo:
+            net = todo.pop()
+            for e, _ in terminals.get(net, []):
+                if e.key in elements:
+                    continue
+                elements[e.key] = e
+                if e.kind in "RLDC" and len(e.nodes) == 2 or _is_wire(e):
+                    for n in e.nodes:
+                        if n not in stops and n not in nets:
+                            nets.add(n)
+                            todo.append(n)
+                elif problem is None:
+                    what = "a black-box part" if e.kind == "X" else f"a {e.kind} element"
+                    problem = f"{start.name}'s circuit reaches {what}, {e.name}, which drc cannot solve"
+        return nets, list(elements.values()), problem
 
     for key, led in leds.items():
         if key in seen:
@@ -685,29 +705,91 @@ def _trace_branches(flat, terminals, supplies, pins, leds, corners, notes) -> li
         a, k = e.nodes
         group = parallel_group(e, a, k)
         came = {g.key for g in group}
-        anode_end, up_path, up_stages = walk(a, set(came), True)
+        anode_end, up_path, up_stages = walk(a, set(came))
         came2 = came | {x.key for x in up_path}
-        cathode_end, down_path, down_stages = walk(k, came2, False)
-        # drive end first: the anode side reversed, then the LED stage, then the cathode side
+        cathode_end, down_path, down_stages = walk(k, came2)
         path = list(reversed(up_path)) + group + down_path
         stages = list(reversed(up_stages)) + [group] + down_stages
-        diode_keys = [d.key for st in stages for d in st]
-        seen.update(d for d in diode_keys if d in leds)
-        # a diode in the path must point along the string
-        string_leds = [leds[d] for d in diode_keys if d in leds]
-        resistors = [x for x in path if x.kind == "R"]
-        nets = sorted({n for x in path for n in x.nodes})
-        branch = Branch(id=e.name, leds=string_leds, stages=stages, elements=path,
-                        resistors=resistors, nets=nets, anode_net=anode_end,
-                        cathode_net=cathode_end, drive="unknown", source=None)
-        _classify(branch, rail_nets, pin_nets, corners)
-        if branch.drive == "unknown" and branch.note is None:
-            branch.note = (f"{e.name}'s string runs from net {anode_end} to net {cathode_end}; "
-                           "neither end is a rail, a port pin or ground")
+        r_nets, r_elements, problem = region(e)
+        dc_elements = [x for x in r_elements if x.kind != "C"]
+        pumped = [x for x in r_elements if x.kind == "C" and any(
+            n in pin_nets and pin_nets[n].drive == "toggle" for n in x.nodes)]
+        is_string = problem is None and not pumped and {x.key for x in dc_elements} == {x.key for x in path}
+        region_leds = [leds[x.key] for x in r_elements if x.key in leds] if not is_string else \
+            [leds[d.key] for st in stages for d in st if d.key in leds]
+        seen.update(l.element.key for l in region_leds)
+        if is_string:
+            string_elements, string_nets = path, sorted({n for x in path for n in x.nodes})
+        else:
+            string_elements = [x for x in r_elements]
+            string_nets = sorted(r_nets | {n for x in r_elements for n in x.nodes if n in stops})
+        branch = Branch(id=e.name, leds=region_leds, stages=stages if is_string else [],
+                        elements=string_elements, resistors=[x for x in string_elements if x.kind == "R"],
+                        nets=string_nets, anode_net=anode_end, cathode_net=cathode_end,
+                        drive="unknown", source=None)
+        if is_string:
+            _classify(branch, rail_nets, pin_nets, corners)
+            if branch.drive == "unknown" and branch.note is None:
+                branch.note = (f"{e.name}'s string runs from net {anode_end} to net {cathode_end}; "
+                               "neither end is a rail, a port pin or ground")
+        elif pumped:
+            branch.note = (f"{e.name} is fed through capacitor {pumped[0].name} from a toggling pin: "
+                           "a charge pump, which this check does not model yet")
+        elif problem:
+            branch.note = problem
+        else:
+            branch.network = _NetworkRegion(sorted(r_nets), dc_elements)
+            _classify_network(branch, rail_nets, pin_nets, corners)
         if branch.note:
             notes.append((e.location, branch.note))
         branches.append(branch)
     return branches
+
+
+@dataclass
+class _NetworkRegion:
+    nets: list[str]
+    elements: list[Element]
+
+
+def _classify_network(b: Branch, rail_nets, pin_nets, corners: Corners) -> None:
+    """Drive and phases of a region that is not a plain string."""
+    touched = sorted({n for x in b.network.elements for n in x.nodes})
+    rails = [rail_nets[n] for n in touched if n in rail_nets]
+    region_pins = [pin_nets[n] for n in touched if n in pin_nets]
+    if not rails and not region_pins:
+        b.note = f"{b.id}'s circuit touches no rail and no port pin"
+        return
+    if region_pins:
+        b.drive, b.pin, b.source = "pin", region_pins[0], region_pins[0].label
+    else:
+        b.drive, b.source = "rail", max(rails, key=lambda s: s.nominal_V).label
+    if rails:
+        b.supply = max(rails, key=lambda s: s.nominal_V)
+    b.network_pins = region_pins
+    states = list(itertools.product([True, False], repeat=len(region_pins)))
+    phases = []
+    for state in states:
+        share = 1.0
+        for pin, high in zip(region_pins, state):
+            if pin.drive == "toggle":
+                share *= pin.duty if high else 1 - pin.duty
+            elif pin.drive == "input":
+                share *= 0.0
+            else:
+                share *= 1.0 if (pin.drive == "high") == high else 0.0
+        if len(region_pins) == 2 and all(p.drive == "toggle" for p in region_pins):
+            first, second = region_pins
+            both = first.high_share_with(second, True)
+            share = {(True, True): both, (True, False): first.duty - both,
+                     (False, True): second.duty - both,
+                     (False, False): 1 - first.duty - second.duty + both}[state]
+        if share <= 1e-12:
+            continue
+        words = " and ".join(f"{p.label} {'high' if h else 'low'}" for p, h in zip(region_pins, state)) or "always"
+        phases.append(Phase(share, np.zeros(corners.count), 0.0, words))
+        phases[-1].pin_states = dict(zip([p.label for p in region_pins], state))
+    b.phases = phases
 
 
 def _end_voltage(net: str, rail_nets, pin_nets):
@@ -808,6 +890,8 @@ def solve_branch(b: Branch, corners: Corners, flat: FlatDesign) -> None:
     """Operating point of a branch in each phase of its drive, at every corner."""
     if not b.phases:
         return
+    if b.network is not None:
+        return _solve_network_branch(b, corners, flat)
     r = sum((x.value or 0.0) for x in b.resistors) * corners.resistor_factor
     b.series_resistance_ohm = np.asarray(r, dtype=float) * np.ones(corners.count)
     t = corners.temperature_K
@@ -855,6 +939,85 @@ def solve_branch(b: Branch, corners: Corners, flat: FlatDesign) -> None:
             peak[name][:] = 0.0
     b.current_A, b.peak_current_A, b.forward_V, b.reverse_V = average, peak, forward, reverse
     b.pin_current_A = pin_peak
+
+
+def _solve_network_branch(b: Branch, corners: Corners, flat: FlatDesign) -> None:
+    t = corners.temperature_K
+    count = corners.count
+    region = b.network
+    led_keys = {l.element.key: l for l in b.leds}
+    resistors, diodes, names = [], [], []
+    for x in region.elements:
+        if x.kind == "R":
+            resistors.append((x.nodes[0], x.nodes[1], (x.value or 0.0) * corners.resistor_factor))
+        elif x.kind == "L" or _is_wire(x):
+            resistors.append((x.nodes[0], x.nodes[1], 1e-6))
+        elif x.kind == "D":
+            params = led_keys[x.key].params if x.key in led_keys else diode_params(flat, x)
+            diodes.append((x.nodes[0], x.nodes[1], params))
+            names.append(x)
+    b.series_resistance_ohm = np.full(count, sum((x.value or 0.0) for x in b.resistors)) * corners.resistor_factor
+    average = {l.name: np.zeros(count) for l in b.leds}
+    peak = {l.name: np.zeros(count) for l in b.leds}
+    forward = {l.name: np.zeros(count) for l in b.leds}
+    reverse = {l.name: np.zeros(count) for l in b.leds}
+    pin_peak: dict[str, np.ndarray] = {}
+    touched = {n for x in region.elements for n in x.nodes}
+    best = -1.0
+    from drc.network import NetworkError, solve_network
+    pin_nets = [p.net for p in b.network_pins]
+    links = [(p.net + "#source", p.net, np.full(count, max(p.output_resistance_ohm, 1e-3)))
+             for p in b.network_pins]
+    for index, phase in enumerate(b.phases):
+        held = {GROUND: (0.0, 0.0)}
+        for pin in b.network_pins:
+            high = phase.pin_states.get(pin.label, True)
+            held[pin.net + "#source"] = (pin.high_V if high else np.zeros(count), 0.0)
+        for net in touched:
+            if net in held or net in region.nets or net in pin_nets:
+                continue
+            rail = next((s for s in _rails_of(b) if s.net == net), None)
+            if rail is None:
+                b.note = f"{b.id}: its circuit touches net {net}, held by a second rail"
+                b.phases = []
+                return
+            held[net] = (rail.voltage_V, 0.0)
+        try:
+            volts, currents = solve_network(region.nets + pin_nets, held, resistors + links, diodes, t)
+        except NetworkError as error:
+            b.note = f"{b.id}: {error}"
+            b.phases = []
+            return
+
+        def v_of(net):
+            if net in volts:
+                return volts[net]
+            return np.broadcast_to(np.asarray(held[net][0], dtype=float), (count,)) if net in held else np.zeros(count)
+
+        for x, i in zip(names, currents):
+            if x.key not in led_keys:
+                continue
+            name = x.name
+            i = np.maximum(i, 0.0)
+            vf = v_of(x.nodes[0]) - v_of(x.nodes[1])
+            average[name] += phase.share * i
+            brighter = i > peak[name]
+            forward[name] = np.where(brighter, vf, forward[name])
+            peak[name] = np.maximum(peak[name], i)
+            reverse[name] = np.maximum(reverse[name], -np.minimum(vf, 0.0))
+        total = sum(np.maximum(i, 0.0) for x, i in zip(names, currents) if x.key in led_keys)
+        if float(np.asarray(total)[corners.nominal]) > best:
+            best = float(np.asarray(total)[corners.nominal])
+            b.lit_phase = index
+        for pin, (src, net, ohm) in zip(b.network_pins, links):
+            drawn = np.abs(v_of(src) - v_of(net)) / ohm
+            pin_peak[pin.label] = np.maximum(pin_peak.get(pin.label, np.zeros(count)), drawn)
+    b.current_A, b.peak_current_A, b.forward_V, b.reverse_V = average, peak, forward, reverse
+    b.pin_current_A = pin_peak
+
+
+def _rails_of(b: Branch):
+    return [b.supply] if b.supply is not None else []
 
 
 def low_nominal_high(values: np.ndarray, nominal: int) -> dict[str, float]:

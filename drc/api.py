@@ -36,7 +36,23 @@ API_VERSION = 1
 SEVERITIES = ("error", "warning", "note")
 
 __all__ = ["API_VERSION", "SEVERITIES", "Rule", "Finding", "finding", "format_quantity",
-           "Location"]
+           "Location", "worst_low", "worst_high", "corner", "corner_words", "branch_cautions",
+           "needed_voltage", "series_resistor_advice", "format_resistance", "GROUND"]
+
+
+def __getattr__(name):
+    # the analysis helpers load numpy and the solver: only when a rule asks for them
+    if name in ("worst_low", "worst_high", "corner", "corner_words", "branch_cautions",
+                "needed_voltage", "series_resistor_advice"):
+        from drc import advice
+        return getattr(advice, name)
+    if name == "format_resistance":
+        from drc.preferred import format_resistance
+        return format_resistance
+    if name == "GROUND":
+        from drc.design import GROUND
+        return GROUND
+    raise AttributeError(name)
 
 
 @dataclass(frozen=True)

@@ -53,9 +53,10 @@ def render_text(report: dict, sources: dict[str, list[str]] | None = None, *,
         out.extend(_indicators(report.get("branches") or ()))
         out.extend(_pumps(report.get("pumps") or ()))
         out.extend(_bullets("Assumed (no setting said otherwise)", report.get("assumptions")))
-        out.extend(_bullets("Cautions", report.get("cautions")))
-        out.extend(textwrap.wrap(REVIEW_REMINDER, WIDTH))
-        out.append("")
+        cautions = list(report.get("cautions") or ())
+        if not any("not a sign-off" in c for c in cautions):
+            cautions.append(REVIEW_REMINDER)      # the report always says it, once
+        out.extend(_bullets("Cautions", cautions))
     out.append(summary_line(report, fail_on, paint))
     return "\n".join(out) + "\n"
 

@@ -1,0 +1,108 @@
+"""Helpers the rules share, published through drc.api: where a value is worst, what a corner
+is in words, what series resistor would do, and which cautions a branch carries."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from drc import preferred
+from drc.analysis import Branch, Design, Led, diode_params
+from drc.diode import voltage_at_current
+from drc.solve import choose_series_resistor
+from drc.units import format_si
+
+LITHIUM_CAUTION = ("Lithium cells shorted or reversed can overheat, vent or burn: protect the "
+                   "battery path and follow the cell maker's datasheet.")
+EYE_CAUTION = ("Infrared, ultraviolet and high-brightness LEDs have eye-safety limits (IEC 62471): "
+               "the part's datasheet and the standard govern.")
+
+
+def worst_low(values: np.ndarray) -> int:
+    """The corner index where a per-corner value is least."""
+    return int(np.argmin(values))
+
+
+def worst_high(values: np.ndarray) -> int:
+    """The corner index where a per-corner value is greatest."""
+    return int(np.argmax(values))
+
+
+def corner(design: Design, index: int) -> dict:
+    """A corner as the report gives it: {"supply_V": {...}, "temperature_C": ...}."""
+    return design.corners.describe(index)
+
+
+def corner_words(design: Design, index: int) -> str:
+    return design.corners.words(index)
+
+
+def branch_cautions(design: Design, branch: Branch) -> str:
+    """The cautions that apply to a branch: lithium-fed, eye safety."""
+    parts = []
+    supply = branch.supply
+    if supply is None:
+        pin = branch.pin or branch.sink_pin
+        if pin is not None and pin.supply in design.supplies:
+            supply = design.supplies[pin.supply]
+    if supply is not None and supply.lithium:
+        parts.append(LITHIUM_CAUTION)
+    if any(l.eye_safety for l in branch.leds):
+        parts.append(EYE_CAUTION)
+    return " ".join(parts)
+
+
+def _stages(design: Design, branch: Branch):
+    led_params = {l.element.key: l.params for l in branch.leds}
+    return [[led_params[d.key] if d.key in led_params else diode_params(design.flat, d) for d in st]
+            for st in branch.stages]
+
+
+def needed_voltage(design: Design, branch: Branch, current_A: float, index: int) -> float:
+    """The drive voltage the string needs to carry `current_A` at corner `index`."""
+    t = float(design.corners.temperature_K[index])
+    total = 0.0
+    for stage in _stages(design, branch):
+        total += float(voltage_at_current(stage[0], current_A / len(stage), t))
+    _, resistance = branch.on_drive()
+    return total + current_A * float(resistance[index])
+
+
+def series_resistor_advice(design: Design, branch: Branch, led: Led, goal: str = "both") -> str:
+    """The E24 series resistor (IEC 60063) that keeps `led` visible at every corner and under
+    its maximum at every corner, computed; or a plain statement that none can, and what would."""
+    if branch.network is not None or not branch.phases or not branch.stages:
+        return ("its circuit is not a plain string: adjust the resistors around "
+                f"{led.name} and check again")
+    phase = branch.phases[branch.lit_phase]
+    share = max(phase.share, 1e-9)
+    drive = phase.drive_V
+    fixed = np.full(design.corners.count, phase.extra_resistance_ohm)
+    choice = choose_series_resistor(drive, fixed, _stages(design, branch), design.corners.temperature_K,
+                                    None, None, led.visible_current_A / share, led.max_current_A)
+    have = ", ".join(f"{r.name} {preferred.format_resistance(r.value)}" for r in branch.resistors) or "no resistor"
+    if choice.verdict == "ok":
+        low = choice.acceptable_ohm[0]
+        high = choice.acceptable_ohm[-1]
+        return (f"use {preferred.format_resistance(choice.best_ohm)} (E24, IEC 60063) in place of {have}: "
+                f"it keeps {led.name} above {format_si(led.visible_current_A, 'A')} at every corner and "
+                f"under {format_si(led.max_current_A, 'A')}; any E24 value from "
+                f"{preferred.format_resistance(low)} to {preferred.format_resistance(high)} does")
+    if choice.verdict == "too-dim" and goal == "max":
+        cap = choose_series_resistor(drive, fixed, _stages(design, branch), design.corners.temperature_K,
+                                     None, None, 1e-12, led.max_current_A)
+        if cap.acceptable_ohm:
+            return (f"use at least {preferred.format_resistance(cap.acceptable_ohm[0])} (E24, IEC 60063) "
+                    f"in place of {have} to stay under {format_si(led.max_current_A, 'A')} at the high "
+                    f"corner; no resistor also keeps it visible at the low corner (see led-headroom)")
+    if choice.verdict == "too-dim":
+        best = choice.zero_added_low_current_A * share
+        lift = needed_voltage(design, branch, led.visible_current_A / share, worst_low(drive))
+        return (f"no series resistor can: even with none, {led.name} gets {format_si(best, 'A')} at the "
+                f"low corner; lift it with a charge pump, choose a lower-voltage colour (red or amber "
+                f"drop about 1.8 V at 1 mA), or feed it from a regulated rail of at least {lift:.2f} V")
+    if choice.verdict == "too-bright":
+        return (f"even {preferred.format_resistance(choice.candidates_ohm[-1])} lets too much through: "
+                "the drive is far above what the LED needs; use a lower rail")
+    return (f"no single E24 value keeps {led.name} visible at the low corner and under its maximum "
+            "at the high corner: the corners spread its current too widely; a regulated rail or a "
+            "constant-current drive would")
