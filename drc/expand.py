@@ -418,6 +418,7 @@ def expand(path: str | Path, limits: Limits | None = None) -> FlatDesign:
                          f"above the limit of {limits.max_elements} (limits.max_elements)")
     flat = _Flattener(ex)
     params = Params(None, {a.key.text.lower(): (a.value, None) for a in top.params}, ex, "")
+    flat.entered[id(top)] = ("", params)
     for a in top.params:
         params.lookup(a.key.text.lower())
     flat.walk(top, "", "", {}, params, ())
@@ -437,7 +438,7 @@ class _Flattener:
         self.elements: list[Element] = []
         self.models: dict[str, Model] = {}
         self.nets: set[str] = set()
-        self.model_scopes: dict[int, dict[str, str]] = {}
+        self.entered: dict[int, tuple[str, Params]] = {}   # id(scope) -> (prefix, params)
 
     def net(self, word: Word, prefix: str, ports: dict[str, str]) -> str:
         key = word.text.lower()
@@ -451,26 +452,19 @@ class _Flattener:
 
     def model_key(self, name: Word, scope: Scope, prefix: str, params: Params) -> str:
         key = name.text.lower()
-        s, pre = scope, prefix
-        depth_prefixes = []
+        s = scope
         while s is not None:
             if key in s.models:
-                full = (pre if s is scope else self._prefix_of(s, scope, prefix)) + key
+                # a model of an enclosing scope is named by the path of the instance through
+                # which that scope was entered (the top's models have no prefix) and takes
+                # that scope's parameters
+                pre, own = (prefix, params) if s is scope else self.entered.get(id(s), ("", None))
+                full = pre + key
                 if full not in self.models:
-                    self.models[full] = self._model(s.models[key], full, params if s is scope else None)
+                    self.models[full] = self._model(s.models[key], full, own)
                 return full
             s = s.parent
         raise InputError(name.location, f"no .model named '{name.text}'")
-
-    def _prefix_of(self, target: Scope, scope: Scope, prefix: str) -> str:
-        # models of enclosing scopes: the top's have no prefix; an enclosing subcircuit's are
-        # shared by its contents, named by the outer instance path
-        parts = prefix.split(".")[:-1]
-        s = scope
-        while s is not target and parts:
-            s = s.parent
-            parts = parts[:-1]
-        return ".".join(parts) + "." if parts else ""
 
     def _model(self, card: DotCard, key: str, params: Params | None) -> Model:
         fields = card.fields[1:]
@@ -649,8 +643,15 @@ class _Flattener:
             definitions[a.key.text.lower()] = (a.value, None)
         inner = Params(params, definitions, self.ex, name)
         inner_ports = {p.text.lower(): n for p, n in zip(sub.ports, nodes)}
-        self.walk(sub.body, prefix + card.name.text.lower() + ".", name + ".", inner_ports, inner,
+        inner_prefix = prefix + card.name.text.lower() + "."
+        before = self.entered.get(id(sub.body))
+        self.entered[id(sub.body)] = (inner_prefix, inner)
+        self.walk(sub.body, inner_prefix, name + ".", inner_ports, inner,
                   instances + (card.location,))
+        if before is None:
+            del self.entered[id(sub.body)]
+        else:
+            self.entered[id(sub.body)] = before
 
 
 def _is_value(f) -> bool:

@@ -109,6 +109,9 @@ def split_lines(text: str) -> list[str]:
     return text.split("\n")
 
 
+_CONTROL = re.compile(r"\.control\b", re.I)
+
+
 def _is_end(stripped: str) -> bool:
     low = stripped[:5].lower()
     return low == ".end" and (len(stripped) == 4 or stripped[4] in " \t")
@@ -124,7 +127,9 @@ def plain_card(line: str, path: str, line_number: int) -> ElementCard | None:
     return element_card(words[0], tuple(words[1:]))
 
 
-_SIMPLE_CHARS = re.compile(r"[{}'\";$]")
+# braces, quotes, comments, and white space other than what separates fields (a no-break
+# space or a vertical tab is no separator to the grammar: it reads those cards itself)
+_SIMPLE_CHARS = re.compile(r"[{}'\";$]|[^\S \t\f\r]")
 _SIMPLE_TOKEN = re.compile(r"[^\s(){}'\"=,;$]+|[()=,]")
 
 
@@ -136,6 +141,8 @@ def simple_card(line: str, path: str, line_number: int) -> Card | None:
         return None
     tokens = [(m.group(), m.start() + 1) for m in _SIMPLE_TOKEN.finditer(line, start)]
     tokens = [t for t in tokens if t[0] != ","]
+    if not tokens:
+        return None
     head_text = tokens[0][0]
     if head_text[0] == ".":
         if not _DOT_NAME.fullmatch(head_text):
@@ -214,7 +221,7 @@ def read_text(text: str, path: str, has_title: bool = True) -> ParsedFile:
         j = i + 1
         while j < n:
             nxt = lines[j].lstrip(" \t\f")
-            if not nxt or nxt[0] == "*":
+            if not nxt or nxt[0] == "*" or nxt[0] == ";":
                 j += 1
                 continue
             if nxt[0] == "+":
@@ -225,7 +232,7 @@ def read_text(text: str, path: str, has_title: bool = True) -> ParsedFile:
         if stripped[0] == ".":
             if _is_end(stripped):
                 break
-            if stripped[:8].lower() == ".control":
+            if _CONTROL.match(stripped):
                 end = i + 1
                 while end < n and not lines[end].lstrip().lower().startswith(".endc"):
                     end += 1
@@ -298,18 +305,31 @@ def _syntax_error(error: UnexpectedInput, text: str, path: str, line_offset: int
         return InputError(where, f"unexpected character {char!r}")
     if isinstance(error, UnexpectedToken):
         token = error.token
+        start = len(text) if token.type == "$END" or token.start_pos is None else token.start_pos
+        if text[:start].rstrip().endswith("="):
+            eq = text.rindex("=", 0, start)
+            eq_line = text.count("\n", 0, eq) + 1
+            eq_col = eq - (text.rfind("\n", 0, eq) + 1) + 1
+            return InputError(Location(path, eq_line + line_offset, eq_col),
+                              "'=' with no value after it")
         if token.type == "$END":
             return InputError(where, "the card ends too early")
-        shown = str(token).strip() or token.type
-        before = text[:token.start_pos].rstrip() if token.start_pos is not None else ""
-        if before.endswith("="):
-            return InputError(where, "'=' with no value after it")
+        raw = str(token)
+        if raw and raw[0].isspace() and raw[0] not in " \t\f\r\n":
+            return InputError(where, f"unexpected white space {raw[0]!r} (only spaces and tabs "
+                              "separate fields)")
+        shown = raw.strip() or token.type
         if shown == ")":
             return InputError(where, "')' with no '(' before it")
         if shown == "=":
             return InputError(where, "'=' with no parameter name before it")
         return InputError(where, f"unexpected {shown!r}")
     if isinstance(error, UnexpectedEOF):
+        if text.rstrip().endswith("="):
+            eq = text.rstrip().rindex("=")
+            return InputError(Location(path, text.count("\n", 0, eq) + 1 + line_offset,
+                                       eq - (text.rfind("\n", 0, eq) + 1) + 1),
+                              "'=' with no value after it")
         return InputError(where, "the card ends too early")
     return InputError(where, "syntax error")
 
