@@ -138,16 +138,22 @@ def block_parallel(b: Board, k: int) -> None:
         b.card(f"{b.name('D')} pl{k}_a 0 {model}")
 
 
+# A board reuses a few standard pump cells (rail, pumping capacitor, LED, series resistor),
+# as real designs reuse a validated cell; drc simulates each distinct cell once.
+PUMP_CELLS = [(RAILS[0], "10u", "LED_WHT", "47"), (RAILS[2], "10u", "LED_WHT", "22"),
+              (RAILS[2], "22u", "LED_GRN", "47"), (RAILS[0], "4.7u", "LED_GRN", "68")]
+
+
 def block_pump(b: Board, k: int) -> None:
     """A doubler: charge diode from the rail, capacitor lifted by a toggling pin, transfer
     diode, then the LED and its resistor to ground."""
-    _, net, volts, _ = b.rng.choice([RAILS[0], RAILS[2]])
+    (_, net, volts, _), cap, led, resistor = b.rng.choice(PUMP_CELLS)
     b.pin(f"pu{k}_pa", volts, toggle=True, period="0.5m")
     b.card(f"{b.name('D')} {net} pu{k}_x SCHOTTKY")
-    b.two_terminal("C", f"pu{k}_pa", f"pu{k}_x", b.rng.choice(["4.7u", "10u", "22u"]))
+    b.two_terminal("C", f"pu{k}_pa", f"pu{k}_x", cap)
     b.card(f"{b.name('D')} pu{k}_x pu{k}_o SCHOTTKY")
-    b.card(f"{b.name('D')} pu{k}_o pu{k}_k {b.rng.choice(['LED_WHT', 'LED_GRN'])}")
-    b.two_terminal("R", f"pu{k}_k", "0", b.rng.choice(["22", "47", "68", "100"]))
+    b.card(f"{b.name('D')} pu{k}_o pu{k}_k {led}")
+    b.two_terminal("R", f"pu{k}_k", "0", resistor)
 
 
 def block_rc(b: Board, k: int) -> None:

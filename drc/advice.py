@@ -9,7 +9,27 @@ from drc import preferred
 from drc.analysis import Branch, Design, Led, diode_params
 from drc.diode import voltage_at_current
 from drc.solve import choose_series_resistor
+from drc.memo import Memo, value_key
 from drc.units import format_si
+
+CHOICES = Memo()
+
+
+def _choose(drive, fixed, stages, temperature_K, visible_A, max_A, factor):
+    """choose_series_resistor, once per distinct branch, on the corners that bound it: the
+    distinct combinations of drive, temperature and tolerance, cut to the ends of each."""
+    key = (value_key(drive), value_key(fixed), tuple(tuple(s) for s in stages),
+           value_key(temperature_K), visible_A, max_A, value_key(factor))
+    known = CHOICES.get(key)
+    if known is None:
+        table = np.stack([np.asarray(drive, float), np.asarray(fixed, float),
+                          np.asarray(temperature_K, float), np.asarray(factor, float)], axis=1)
+        _, sel = np.unique(table, axis=0, return_index=True)
+        known = choose_series_resistor(np.asarray(drive)[sel], np.asarray(fixed)[sel], stages,
+                                       np.asarray(temperature_K)[sel], None, None,
+                                       visible_A, max_A, candidate_factor=np.asarray(factor)[sel])
+        CHOICES.put(key, known)
+    return known
 
 LITHIUM_CAUTION = ("Lithium cells shorted or reversed can overheat, vent or burn: protect the "
                    "battery path and follow the cell maker's datasheet.")
@@ -77,8 +97,8 @@ def series_resistor_advice(design: Design, branch: Branch, led: Led, goal: str =
     share = max(phase.share, 1e-9)
     drive = phase.drive_V
     fixed = np.full(design.corners.count, phase.extra_resistance_ohm)
-    choice = choose_series_resistor(drive, fixed, _stages(design, branch), design.corners.temperature_K,
-                                    None, None, led.visible_current_A / share, led.max_current_A)
+    choice = _choose(drive, fixed, _stages(design, branch), design.corners.temperature_K,
+                     led.visible_current_A / share, led.max_current_A, design.corners.resistor_factor)
     have = ", ".join(f"{r.name} {preferred.format_resistance(r.value)}" for r in branch.resistors) or "no resistor"
     if choice.verdict == "ok":
         low = choice.acceptable_ohm[0]
@@ -88,8 +108,8 @@ def series_resistor_advice(design: Design, branch: Branch, led: Led, goal: str =
                 f"under {format_si(led.max_current_A, 'A')}; any E24 value from "
                 f"{preferred.format_resistance(low)} to {preferred.format_resistance(high)} does")
     if choice.verdict == "too-dim" and goal == "max":
-        cap = choose_series_resistor(drive, fixed, _stages(design, branch), design.corners.temperature_K,
-                                     None, None, 1e-12, led.max_current_A)
+        cap = _choose(drive, fixed, _stages(design, branch), design.corners.temperature_K,
+                      1e-12, led.max_current_A, design.corners.resistor_factor)
         if cap.acceptable_ohm:
             return (f"use at least {preferred.format_resistance(cap.acceptable_ohm[0])} (E24, IEC 60063) "
                     f"in place of {have} to stay under {format_si(led.max_current_A, 'A')} at the high "
@@ -106,3 +126,54 @@ def series_resistor_advice(design: Design, branch: Branch, led: Led, goal: str =
     return (f"no single E24 value keeps {led.name} visible at the low corner and under its maximum "
             "at the high corner: the corners spread its current too widely; a regulated rail or a "
             "constant-current drive would")
+
+
+def rerun_pump(design: Design, pump, **changes):
+    """The pump's model result with changes (series_ohm={pin: ohm}, capacitor_scale={key: x},
+    diode_override={key: DiodeParams}), at every corner; the start-up in its quick form."""
+    from drc.pumps import expand_result, simulate
+    region = pump.region
+    labels = {r.label for r in region.rails} | {p.supply for p in region.pins if p.supply}
+    sel, inverse = design.corners.reduce(sorted(labels), capacitors=True)
+    result = simulate(region, design.corners.subset(sel), lambda e: diode_params(design.flat, e),
+                      fast=True, sel=sel, **changes)
+    return expand_result(result, inverse)
+
+
+# A small Schottky for fixes that suggest one (from memory: about 0.3 V at 1 mA).
+SCHOTTKY_SUGGESTION = dict(IS=2e-7, N=1.05, RS=2.0, XTI=2.0, EG=0.69)
+
+
+def schottky_params():
+    from drc.diode import DiodeParams
+    return DiodeParams(**SCHOTTKY_SUGGESTION)
+
+
+def flicker_of_branch(design: Design, branch: Branch, led: Led):
+    """(frequency Hz, modulation percent) of an LED's light, or None when it is steady."""
+    from drc.flicker import modulation_percent
+    if branch.drive == "pump" and branch.pump_region is not None and branch.pump_region.result is not None:
+        r = branch.pump_region.result
+        pins = [p for p in branch.pump_region.pins if p.drive == "toggle"]
+        if not pins:
+            return None
+        row = getattr(r, "corner_index", None)
+        wave = r.load_current_A[row[design.corners.nominal] if row is not None else design.corners.nominal]
+        return pins[0].frequency_Hz, modulation_percent(wave)
+    pins = [p for p in (branch.pin, branch.sink_pin) if p is not None and p.drive == "toggle"]
+    pins += [p for p in branch.network_pins if p.drive == "toggle" and p not in pins]
+    if not pins or not branch.phases:
+        return None
+    n = design.corners.nominal
+    currents = []
+    for phase in branch.phases:
+        if branch.network is None:
+            currents.append(phase.share)
+    lit = branch.peak_current_A.get(led.name)
+    average = branch.current_A.get(led.name)
+    if lit is None or average is None or lit[n] <= 0:
+        return None
+    share = branch.phases[branch.lit_phase].share
+    # a square drive: lit for `share` of the period at the lit current, else at the rest
+    rest = (average[n] - share * lit[n]) / max(1 - share, 1e-12) if share < 1 else lit[n]
+    return pins[0].frequency_Hz, modulation_percent([lit[n], max(rest, 0.0)])

@@ -22,8 +22,12 @@ from drc.context import Context, PinSpec, SupplySpec
 from drc.design import GROUND, Element, FlatDesign
 from drc.diode import ZERO_CELSIUS_K, DiodeParams, voltage_at_current
 from drc.errors import InputError, InputErrors, Location
+from drc.memo import Canon, Memo, value_key
 from drc.solve import led_model_from_forward_voltages, solve_string
 
+STRING_SOLUTIONS = Memo()
+NETWORK_SOLUTIONS = Memo()
+PUMP_SOLUTIONS = Memo()
 LED_THRESHOLD_V = 1.4          # a diode dropping at least this at 1 mA is an LED (issue text)
 SERIES_KINDS = frozenset("RLD")
 
@@ -48,12 +52,48 @@ class Corners:
         return int(self.temperature_C.shape[0])
 
     @property
+    def shown(self) -> list[str]:
+        """The supplies a corner names: those that vary (all of them when none does and
+        there are few)."""
+        cached = self.__dict__.get("_shown")
+        if cached is None:
+            cached = [k for k, v in self.supply_V.items() if v.size and v.min() != v.max()]
+            if not cached and len(self.supply_V) <= 8:
+                cached = list(self.supply_V)
+            self.__dict__["_shown"] = cached
+        return cached
+
+    @property
     def temperature_K(self) -> np.ndarray:
         return self.temperature_C + ZERO_CELSIUS_K
 
+    def reduce(self, supplies, capacitors: bool = False) -> tuple[np.ndarray, np.ndarray]:
+        """(sel, inverse): representative corner indices for the distinct combinations of the
+        named supplies, temperature, resistor (and capacitor) tolerance; and for every corner,
+        which of them stands for it. A circuit on one rail is solved on its own corners only."""
+        cache = self.__dict__.setdefault("_reduced", {})
+        key = (tuple(label for label in supplies if label in self.shown), capacitors)
+        if key in cache:
+            return cache[key]
+        columns = [self.supply_V[label] for label in key[0]]
+        columns += [self.temperature_C, self.resistor_factor]
+        if capacitors:
+            columns.append(self.capacitor_factor)
+        table = np.stack(columns, axis=1)
+        _, sel, inverse = np.unique(table, axis=0, return_index=True, return_inverse=True)
+        cache[key] = (sel, inverse.reshape(-1))
+        return cache[key]
+
+    def subset(self, sel: np.ndarray) -> "Corners":
+        """The corners at `sel` (nominal: the one nearest the all-nominal corner); only the
+        supplies that vary are carried (the circuit solved on them reads its own arrays)."""
+        nominal = int(np.flatnonzero(sel == self.nominal)[0]) if np.any(sel == self.nominal) else 0
+        return Corners({k: self.supply_V[k][sel] for k in self.shown}, self.temperature_C[sel],
+                       self.resistor_factor[sel], self.capacitor_factor[sel], nominal)
+
     def describe(self, i: int) -> dict:
         """The corner as the report gives it."""
-        out: dict[str, Any] = {"supply_V": {k: round(float(v[i]), 6) for k, v in self.supply_V.items()},
+        out: dict[str, Any] = {"supply_V": {k: round(float(self.supply_V[k][i]), 6) for k in self.shown},
                                "temperature_C": round(float(self.temperature_C[i]), 6)}
         rf = float(self.resistor_factor[i])
         if rf != 1.0:
@@ -65,7 +105,7 @@ class Corners:
 
     def words(self, i: int) -> str:
         """The corner in words: "VBAT 2.00 V, -20 °C, resistors -5 %"."""
-        parts = [f"{k} {float(v[i]):.2f} V" for k, v in self.supply_V.items()]
+        parts = [f"{k} {float(self.supply_V[k][i]):.2f} V" for k in self.shown]
         parts.append(f"{float(self.temperature_C[i]):g} °C")
         rf = float(self.resistor_factor[i])
         if rf != 1.0:
@@ -81,18 +121,34 @@ def _three(low: float, nominal: float, high: float) -> list[float]:
     return out
 
 
-def make_corners(supplies: dict[str, "Supply"], context: Context, with_capacitors: bool) -> Corners:
-    axes = []
-    nominal_index = []
-    for s in supplies.values():
-        values = _three(s.low_V, s.nominal_V, s.high_V)
-        axes.append(values)
-        nominal_index.append(values.index(next(v for v in values if abs(v - s.nominal_V) < 1e-12)))
+MAX_INDEPENDENT_SUPPLIES = 3
+
+
+def make_corners(supplies: dict[str, "Supply"], context: Context, with_capacitors: bool,
+                 assumptions: "_Assumptions | None" = None) -> Corners:
+    """Fixed supplies take one value; up to MAX_INDEPENDENT_SUPPLIES ranged ones vary
+    independently; beyond that, all ranged supplies move together (low, nominal, high)."""
+    ranged = [s for s in supplies.values() if s.low_V != s.high_V]
+    together = len(ranged) > MAX_INDEPENDENT_SUPPLIES
+    if together and assumptions is not None:
+        assumptions.add(f"{len(ranged)} supplies with a range: checked moving together "
+                        "(all low, all nominal, all high), not in every combination")
+    axes, nominal_index, columns = [], [], []
+    if together:
+        axes.append([0, 1, 2])
+        nominal_index.append(1)
+        columns.append("together")
+    else:
+        for s in ranged:
+            values = _three(s.low_V, s.nominal_V, s.high_V)
+            axes.append(values)
+            nominal_index.append(min(range(len(values)), key=lambda k: abs(values[k] - s.nominal_V)))
+            columns.append(s.label)
     t_lo, t_hi = context.temperature_C
     t_nom = context.nominal_temperature_C
     temps = _three(t_lo, t_nom, t_hi)
     axes.append(temps)
-    nominal_index.append(temps.index(next(v for v in temps if abs(v - t_nom) < 1e-12)))
+    nominal_index.append(min(range(len(temps)), key=lambda k: abs(temps[k] - t_nom)))
     rt = context.resistor_tolerance
     rfs = _three(1 - rt, 1.0, 1 + rt)
     axes.append(rfs)
@@ -104,11 +160,19 @@ def make_corners(supplies: dict[str, "Supply"], context: Context, with_capacitor
     grid = np.array(list(itertools.product(*axes)), dtype=float).reshape(-1, len(axes))
     shape = [len(a) for a in axes]
     nominal = int(np.ravel_multi_index(nominal_index, shape))
-    labels = list(supplies)
-    return Corners(supply_V={label: grid[:, k].copy() for k, label in enumerate(labels)},
-                   temperature_C=grid[:, len(labels)].copy(),
-                   resistor_factor=grid[:, len(labels) + 1].copy(),
-                   capacitor_factor=grid[:, len(labels) + 2].copy(), nominal=nominal)
+    count = grid.shape[0]
+    supply_V = {}
+    k = len(columns)
+    for s in supplies.values():
+        if s.low_V == s.high_V:
+            supply_V[s.label] = np.full(count, s.nominal_V)
+        elif together:
+            supply_V[s.label] = np.choose(grid[:, 0].astype(int), [s.low_V, s.nominal_V, s.high_V]).astype(float)
+        else:
+            supply_V[s.label] = grid[:, columns.index(s.label)].copy()
+    return Corners(supply_V=supply_V, temperature_C=grid[:, k].copy(),
+                   resistor_factor=grid[:, k + 1].copy(), capacitor_factor=grid[:, k + 2].copy(),
+                   nominal=nominal)
 
 
 # ---------------------------------------------------------------------------- parts
@@ -236,7 +300,9 @@ class Branch:
     pin_current_A: dict[str, np.ndarray] = field(default_factory=dict)    # per pin label, peak
     lit_phase: int = 0
     network: "Any" = None           # a region that is not a plain string: solved as a network
+    pump_region: "Any" = None       # drc.pumps.PumpRegion for a pump-fed LED
     network_pins: list = field(default_factory=list)
+    network_rails: list = field(default_factory=list)
 
     @property
     def led(self) -> Led:
@@ -399,9 +465,11 @@ def analyse(flat: FlatDesign, context: Context) -> Design:
         if e is not None:
             pin_sources.add(e.key)
 
+    supply_nets: set[str] = set()
     for spec in context.supplies.values():
         try:
             supplies[spec.label] = _configured_supply(flat, spec, assumptions)
+            supply_nets.add(supplies[spec.label].net)
         except InputError as error:
             errors.append(error)
             continue
@@ -416,8 +484,9 @@ def analyse(flat: FlatDesign, context: Context) -> Design:
         if net is None or e.value is None or e.value == 0:
             continue
         v = sign * e.value
-        if any(s.net == net for s in supplies.values()):
+        if net in supply_nets:
             continue
+        supply_nets.add(net)
         supplies[e.name] = Supply(e.name, net, e.name, v, v, v, None, False, e.location)
         assumptions.add(f"no [supply] table, checked at its DC value {v:g} V only", e.name)
 
@@ -429,20 +498,22 @@ def analyse(flat: FlatDesign, context: Context) -> Design:
             errors.append(error)
             continue
         pins[spec.label] = pin
+    pin_source_keys = {p.source.lower() for p in pins.values() if p.source}
+    configured_supplies = [s for s in supplies.values() if s.configured] or list(supplies.values())
     for e in flat.elements:
         if e.kind != "V" or e.key in pin_sources or e.key in claimed:
             continue
         if e.source is None or e.source.waveform is None or e.source.waveform.kind != "pulse":
             continue
-        if any(p.source and p.source.lower() == e.key for p in pins.values()):
+        if e.key in pin_source_keys:
             continue
-        pin = _pulse_pin(e, None, supplies, assumptions)
+        pin = _pulse_pin(e, None, supplies, assumptions, configured_supplies)
         if pin is not None:
             pins[e.name] = pin
     if errors:
         raise InputErrors(errors)
 
-    corners = make_corners(supplies, context, with_capacitors=True)
+    corners = make_corners(supplies, context, with_capacitors=True, assumptions=assumptions)
     for s in supplies.values():
         s.voltage_V = corners.supply_V[s.label]
     for p in pins.values():
@@ -458,7 +529,12 @@ def analyse(flat: FlatDesign, context: Context) -> Design:
                     terminals=terminals, supplies=supplies, pins=pins, leds=leds,
                     branches=branches, corners=corners, assumptions=[], notes=notes)
     for b in branches:
-        solve_branch(b, corners, flat)
+        if b.pump_region is not None:
+            if b.note is None:
+                _solve_pump_branch(b, corners, flat)
+            design.pumps.extend(b.pump_region.pumps)
+        else:
+            solve_branch(b, corners, flat)
     design.assumptions = list(context.assumptions) + assumptions.lines()
     return design
 
@@ -504,7 +580,7 @@ def _pulse_timing(e: Element) -> tuple[float, float, float, float]:
 
 
 def _pulse_pin(e: Element, spec: PinSpec | None, supplies: dict[str, Supply],
-               assumptions: _Assumptions) -> Pin | None:
+               assumptions: _Assumptions, candidates: list | None = None) -> Pin | None:
     net, sign = _source_net(e)
     if net is None:
         return None
@@ -518,7 +594,8 @@ def _pulse_pin(e: Element, spec: PinSpec | None, supplies: dict[str, Supply],
                             f"{supply}, built-in pin profile ({profile.output_resistance_ohm:g} Ω, "
                             f"{profile.max_current_A * 1e3:g} mA; from memory)", e.name)
         else:
-            match = [s.label for s in supplies.values() if abs(s.nominal_V - high) <= 0.05 * max(high, 1e-9)]
+            match = [s.label for s in (candidates if candidates is not None else supplies.values())
+                     if abs(s.nominal_V - high) <= 0.05 * max(high, 1e-9)]
             supply = match[0] if len(match) == 1 else None
             assumptions.add("a PULSE source with no [pin] table: a toggling port pin "
                             + (f"powered by {supply} (its level matches)" if supply else
@@ -644,20 +721,20 @@ def _trace_branches(flat, terminals, supplies, pins, leds, corners, notes) -> li
     rail_nets = {s.net: s for s in supplies.values()}
     pin_nets = {p.net: p for p in pins.values()}
     stops = set(rail_nets) | set(pin_nets) | {GROUND}
+    toggling = {n for n, p in pin_nets.items() if p.drive == "toggle"}
+    pin_labels = {p.label for p in pin_nets.values()}
     seen: set[str] = set()
     branches = []
 
     def other(e: Element, net: str) -> str:
         return e.nodes[1] if e.nodes[0] == net else e.nodes[0]
 
+    by_ends: dict[tuple[str, str], list[Element]] = {}
+    for led in leds.values():
+        by_ends.setdefault(tuple(led.element.nodes), []).append(led.element)
+
     def parallel_group(led_el: Element, net_a: str, net_k: str) -> list[Element]:
-        group = [led_el]
-        for e, _ in terminals.get(net_a, []):
-            if e is led_el or e.key not in leds or e.key in seen:
-                continue
-            if e.nodes[0] == net_a and e.nodes[1] == net_k:
-                group.append(e)
-        return group
+        return [led_el] + [e for e in by_ends.get((net_a, net_k), ()) if e is not led_el and e.key not in seen]
 
     def walk(net: str, came: set[str]):
         """From a net outward through series elements; returns (end net, path, stages)."""
@@ -712,8 +789,7 @@ def _trace_branches(flat, terminals, supplies, pins, leds, corners, notes) -> li
         stages = list(reversed(up_stages)) + [group] + down_stages
         r_nets, r_elements, problem = region(e)
         dc_elements = [x for x in r_elements if x.kind != "C"]
-        pumped = [x for x in r_elements if x.kind == "C" and any(
-            n in pin_nets and pin_nets[n].drive == "toggle" for n in x.nodes)]
+        pumped = [x for x in r_elements if x.kind == "C" and (x.nodes[0] in toggling or x.nodes[1] in toggling)]
         is_string = problem is None and not pumped and {x.key for x in dc_elements} == {x.key for x in path}
         region_leds = [leds[x.key] for x in r_elements if x.key in leds] if not is_string else \
             [leds[d.key] for st in stages for d in st if d.key in leds]
@@ -732,9 +808,9 @@ def _trace_branches(flat, terminals, supplies, pins, leds, corners, notes) -> li
             if branch.drive == "unknown" and branch.note is None:
                 branch.note = (f"{e.name}'s string runs from net {anode_end} to net {cathode_end}; "
                                "neither end is a rail, a port pin or ground")
-        elif pumped:
-            branch.note = (f"{e.name} is fed through capacitor {pumped[0].name} from a toggling pin: "
-                           "a charge pump, which this check does not model yet")
+        elif pumped and problem is None:
+            _pump_branch(branch, r_nets, r_elements, region_leds, pin_nets, rail_nets, toggling,
+                         pin_labels)
         elif problem:
             branch.note = problem
         else:
@@ -743,7 +819,110 @@ def _trace_branches(flat, terminals, supplies, pins, leds, corners, notes) -> li
         if branch.note:
             notes.append((e.location, branch.note))
         branches.append(branch)
-    return branches
+    return _merge_shared_pins(branches, rail_nets, pin_nets, corners, stops)
+
+
+def _merge_shared_pins(branches, rail_nets, pin_nets, corners, stops) -> list[Branch]:
+    """Strings on one pin share its output resistance: they are solved together, as one
+    network, so each sees the pin's level after the others' current."""
+    parent = {id(b): id(b) for b in branches}
+
+    def find(x):
+        while parent[x] != x:
+            parent[x] = parent[parent[x]]
+            x = parent[x]
+        return x
+
+    owner: dict[str, int] = {}
+    for b in branches:
+        if b.pump_region is not None or not b.phases:
+            continue
+        for p in [p for p in (b.pin, b.sink_pin) if p is not None] + list(b.network_pins):
+            if p.output_resistance_ohm <= 0:
+                continue
+            if p.label in owner:
+                parent[find(id(b))] = find(owner[p.label])
+            else:
+                owner[p.label] = id(b)
+    groups: dict[int, list[Branch]] = {}
+    for b in branches:
+        groups.setdefault(find(id(b)), []).append(b)
+    out = []
+    for b in branches:
+        group = groups[find(id(b))]
+        if len(group) == 1:
+            out.append(b)
+            continue
+        if b is not group[0]:
+            continue
+        elements, seen = [], set()
+        for g in group:
+            for x in g.elements:
+                if x.key not in seen:
+                    seen.add(x.key)
+                    elements.append(x)
+        nets = sorted({n for x in elements for n in x.nodes})
+        merged = Branch(id=group[0].id, leds=[l for g in group for l in g.leds], stages=[],
+                        elements=elements, resistors=[x for x in elements if x.kind == "R"],
+                        nets=nets, anode_net=group[0].anode_net, cathode_net=group[0].cathode_net,
+                        drive="unknown", source=None)
+        merged.network = _NetworkRegion([n for n in nets if n not in stops],
+                                        [x for x in elements if x.kind != "C"])
+        _classify_network(merged, rail_nets, pin_nets, corners)
+        out.append(merged)
+    return out
+
+
+def _pump_branch(branch, r_nets, r_elements, region_leds, pin_nets, rail_nets, toggling,
+                 pin_labels) -> None:
+    from drc.pumps import PumpRegion, classify
+    touched = sorted({n for x in r_elements for n in x.nodes})
+    region_pins = [pin_nets[n] for n in touched if n in pin_nets]
+    region_rails = [rail_nets[n] for n in touched if n in rail_nets]
+    region = PumpRegion(sorted(r_nets), r_elements, region_pins, region_rails, region_leds)
+    region.pumps = classify(r_elements, pin_nets, rail_nets, toggling, pin_labels)
+    for pump in region.pumps:
+        pump.region = region
+    branch.drive = "pump"
+    branch.pump_region = region
+    branch.source = region.pumps[0].id if region.pumps else None
+    branch.elements = r_elements
+    branch.resistors = [x for x in r_elements if x.kind == "R"]
+    toggles = {p.frequency_Hz for p in region_pins if p.drive == "toggle"}
+    if len(toggles) > 1:
+        branch.note = (f"{branch.id}'s pump is lifted by pins at different frequencies "
+                       f"({', '.join(f'{f:g} Hz' for f in sorted(toggles))}), which drc does not model")
+    elif not region.pumps:
+        branch.note = f"{branch.id} is fed through a capacitor from a toggling pin, in no pump drc recognises"
+
+
+def _solve_pump_branch(b: Branch, corners: Corners, flat: FlatDesign) -> None:
+    from drc.pumps import expand_result, simulate
+    region = b.pump_region
+    labels = {r.label for r in region.rails} | {p.supply for p in region.pins if p.supply}
+    sel, inverse = corners.reduce(sorted(labels), capacitors=True)
+    region.corner_sel = sel
+    try:
+        result = simulate(region, corners.subset(sel), lambda e: diode_params(flat, e), fast=True, sel=sel)
+    except (ValueError, FloatingPointError, np.linalg.LinAlgError) as error:
+        b.note = f"{b.id}: the pump model could not solve this circuit ({error})"
+        return
+    result = expand_result(result, inverse)
+    region.result = result
+    load = region.leds[0]
+    name = load.name
+    b.current_A = {name: result.load_average_A}
+    b.peak_current_A = {name: result.load_peak_A}
+    b.forward_V = {name: voltage_at_current(load.params, np.maximum(result.load_average_A, 1e-15),
+                                             corners.temperature_K)}
+    b.reverse_V = {name: np.maximum(result.diode_reverse_max_V.get(name, np.zeros(corners.count)), 0.0)}
+    b.pin_current_A = {label: np.maximum(result.pin_high_peak_A[label], result.pin_low_peak_A[label])
+                       for label in result.pin_high_peak_A if label in {p.label for p in region.pins}}
+    b.series_resistance_ohm = np.full(corners.count, sum(x.value or 0.0 for x in b.resistors)) * corners.resistor_factor
+    if len(region.leds) > 1:
+        b.note = (f"{b.id}'s pump also feeds {', '.join(l.name for l in region.leds[1:])}: "
+                  f"drc takes {name} as its load")
+        b.leds = [load]
 
 
 @dataclass
@@ -767,6 +946,7 @@ def _classify_network(b: Branch, rail_nets, pin_nets, corners: Corners) -> None:
     if rails:
         b.supply = max(rails, key=lambda s: s.nominal_V)
     b.network_pins = region_pins
+    b.network_rails = rails
     states = list(itertools.product([True, False], repeat=len(region_pins)))
     phases = []
     for state in states:
@@ -905,15 +1085,78 @@ def solve_branch(b: Branch, corners: Corners, flat: FlatDesign) -> None:
             else:
                 stage.append(diode_params(flat, d))
         stages.append(stage)
+    key = (tuple(tuple(st) for st in stages), value_key(b.series_resistance_ohm), value_key(t),
+           tuple((ph.share, value_key(ph.drive_V), ph.extra_resistance_ohm) for ph in b.phases),
+           tuple(tuple(d.key in led_params for d in st) for st in b.stages), b.reversed,
+           tuple(p is not None for p in (b.pin, b.sink_pin)))
+    known = STRING_SOLUTIONS.get(key)
+    if known is None:
+        labels = {b.supply.label} if b.supply is not None else set()
+        labels |= {p.supply for p in (b.pin, b.sink_pin) if p is not None and p.supply}
+        labels = sorted(labels)
+        sel, inverse = corners.reduce(labels)
+        small = Branch(b.id, b.leds, b.stages, b.elements, b.resistors, b.nets, b.anode_net,
+                       b.cathode_net, b.drive, b.source, reversed=b.reversed,
+                       phases=[Phase(ph.share, ph.drive_V[sel], ph.extra_resistance_ohm, ph.words)
+                               for ph in b.phases])
+        small.series_resistance_ohm = b.series_resistance_ohm[sel]
+        per_led, lit, pin_total = _solve_string_phases(small, corners.subset(sel), stages,
+                                                       led_params, t[sel])
+        known = ([tuple(v[inverse] for v in entry) for entry in per_led], lit, pin_total[inverse])
+        STRING_SOLUTIONS.put(key, known)
+    per_led, lit_phase, pin_total = known
+    names = [d.name for st in b.stages for d in st if d.key in led_params]
+    b.current_A = {n: v[0] for n, v in zip(names, per_led)}
+    b.peak_current_A = {n: v[1] for n, v in zip(names, per_led)}
+    b.forward_V = {n: v[2] for n, v in zip(names, per_led)}
+    b.reverse_V = {n: v[3] for n, v in zip(names, per_led)}
+    b.lit_phase = lit_phase
+    b.pin_current_A = {p.label: pin_total for p in (b.pin, b.sink_pin) if p is not None}
+
+
+def _solve_merged(drive_V, resistance, stages, t):
+    """solve_string, with identical diodes in parallel taken as one of k times the area
+    (exact: they share the stage's voltage and split its current evenly)."""
+    from types import SimpleNamespace
+    merged, counts = [], []
+    for stage in stages:
+        if len(stage) > 1 and all(d == stage[0] for d in stage):
+            k = len(stage)
+            d = stage[0]
+            merged.append([DiodeParams(IS=d.IS * k, N=d.N, RS=d.RS / k, XTI=d.XTI, EG=d.EG,
+                                       TNOM_C=d.TNOM_C, BV=d.BV, IBV=d.IBV * k)])
+            counts.append(k)
+        else:
+            merged.append(stage)
+            counts.append(0)
+    if not any(counts):
+        return solve_string(drive_V, resistance, stages, t)
+    sol = solve_string(drive_V, resistance, merged, t)
+    currents, forward = [], []
+    for k, stage, i_list, v_list in zip(counts, stages, sol.diode_current_A, sol.forward_V):
+        if k:
+            currents.append([i_list[0] / k] * k)
+            forward.append([v_list[0]] * k)
+        else:
+            currents.append(i_list)
+            forward.append(v_list)
+    return SimpleNamespace(current_A=sol.current_A, stage_V=sol.stage_V, diode_current_A=currents,
+                           forward_V=forward)
+
+
+def _solve_string_phases(b: Branch, corners: Corners, stages, led_params, t):
+    """Per LED (in string order): (average, peak, forward, reverse); the lit phase; the
+    string's peak current (what its pins carry)."""
     average = {l.name: np.zeros(corners.count) for l in b.leds}
     peak = {l.name: np.zeros(corners.count) for l in b.leds}
     forward = {l.name: np.zeros(corners.count) for l in b.leds}
     reverse = {l.name: np.zeros(corners.count) for l in b.leds}
-    pin_peak: dict[str, np.ndarray] = {}
+    pin_total = np.zeros(corners.count)
+    lit_phase = 0
     best_share_current = -1.0
     for index, phase in enumerate(b.phases):
-        sol = solve_string(phase.drive_V, b.series_resistance_ohm + phase.extra_resistance_ohm,
-                           stages, t)
+        sol = _solve_merged(phase.drive_V, b.series_resistance_ohm + phase.extra_resistance_ohm,
+                            stages, t)
         total = np.maximum(sol.current_A, 0.0)
         for si, st in enumerate(b.stages):
             for di, d in enumerate(st):
@@ -929,19 +1172,64 @@ def solve_branch(b: Branch, corners: Corners, flat: FlatDesign) -> None:
         nominal_current = float(total[corners.nominal])
         if nominal_current > best_share_current:
             best_share_current = nominal_current
-            b.lit_phase = index
-        for pin in (b.pin, b.sink_pin):
-            if pin is not None:
-                pin_peak[pin.label] = np.maximum(pin_peak.get(pin.label, np.zeros(corners.count)), total)
+            lit_phase = index
+        pin_total = np.maximum(pin_total, total)
     if b.reversed:
         for name in average:
             average[name][:] = 0.0
             peak[name][:] = 0.0
-    b.current_A, b.peak_current_A, b.forward_V, b.reverse_V = average, peak, forward, reverse
-    b.pin_current_A = pin_peak
+    names = [d.name for st in b.stages for d in st if d.key in led_params]
+    return ([(average[n], peak[n], forward[n], reverse[n]) for n in names], lit_phase, pin_total)
+
+
+def _network_key(b: Branch, corners: Corners, flat: FlatDesign):
+    canon = Canon()
+    led_keys = {l.element.key for l in b.leds}
+    parts = []
+    for x in b.network.elements:
+        nodes = tuple(canon(n) for n in x.nodes)
+        if x.kind == "D":
+            params = next(l.params for l in b.leds if l.element.key == x.key) if x.key in led_keys \
+                else diode_params(flat, x)
+            parts.append(("D", nodes, params, x.key in led_keys))
+        elif x.kind == "V":
+            parts.append(("W", nodes))
+        else:
+            parts.append((x.kind, nodes, x.value))
+    region = tuple(canon(n) for n in b.network.nets)
+    pins = tuple((canon(p.net), value_key(p.high_V), p.output_resistance_ohm) for p in b.network_pins)
+    rails = tuple((canon(r.net), value_key(r.voltage_V)) for r in b.network_rails)
+    phases = tuple((ph.share, tuple(ph.pin_states.get(p.label, True) for p in b.network_pins))
+                   for ph in b.phases)
+    key = (tuple(parts), region, pins, rails, phases, value_key(corners.temperature_K),
+           value_key(corners.resistor_factor))
+    return key
 
 
 def _solve_network_branch(b: Branch, corners: Corners, flat: FlatDesign) -> None:
+    key = _network_key(b, corners, flat)
+    names = [x.name for x in b.network.elements if x.kind == "D" and x.key in {l.element.key for l in b.leds}]
+    known = NETWORK_SOLUTIONS.get(key)
+    if known is not None:
+        per_led, lit_phase, pin_peaks, note = known
+        b.current_A = {n: v[0] for n, v in zip(names, per_led)}
+        b.peak_current_A = {n: v[1] for n, v in zip(names, per_led)}
+        b.forward_V = {n: v[2] for n, v in zip(names, per_led)}
+        b.reverse_V = {n: v[3] for n, v in zip(names, per_led)}
+        b.lit_phase = lit_phase
+        b.pin_current_A = {p.label: v for p, v in zip(b.network_pins, pin_peaks)}
+        if note:
+            b.note, b.phases = note, []
+        b.series_resistance_ohm = np.full(corners.count, sum((x.value or 0.0) for x in b.resistors)) * corners.resistor_factor
+        return
+    _solve_network_phases(b, corners, flat)
+    NETWORK_SOLUTIONS.put(key, ([(b.current_A.get(n), b.peak_current_A.get(n), b.forward_V.get(n),
+                                  b.reverse_V.get(n)) for n in names], b.lit_phase,
+                                [b.pin_current_A.get(p.label) for p in b.network_pins],
+                                b.note if not b.phases else None))
+
+
+def _solve_network_phases(b: Branch, corners: Corners, flat: FlatDesign) -> None:
     t = corners.temperature_K
     count = corners.count
     region = b.network
@@ -976,7 +1264,7 @@ def _solve_network_branch(b: Branch, corners: Corners, flat: FlatDesign) -> None
         for net in touched:
             if net in held or net in region.nets or net in pin_nets:
                 continue
-            rail = next((s for s in _rails_of(b) if s.net == net), None)
+            rail = next((s for s in b.network_rails if s.net == net), None)
             if rail is None:
                 b.note = f"{b.id}: its circuit touches net {net}, held by a second rail"
                 b.phases = []
@@ -1014,10 +1302,6 @@ def _solve_network_branch(b: Branch, corners: Corners, flat: FlatDesign) -> None
             pin_peak[pin.label] = np.maximum(pin_peak.get(pin.label, np.zeros(count)), drawn)
     b.current_A, b.peak_current_A, b.forward_V, b.reverse_V = average, peak, forward, reverse
     b.pin_current_A = pin_peak
-
-
-def _rails_of(b: Branch):
-    return [b.supply] if b.supply is not None else []
 
 
 def low_nominal_high(values: np.ndarray, nominal: int) -> dict[str, float]:

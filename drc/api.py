@@ -37,18 +37,23 @@ SEVERITIES = ("error", "warning", "note")
 
 __all__ = ["API_VERSION", "SEVERITIES", "Rule", "Finding", "finding", "format_quantity",
            "Location", "worst_low", "worst_high", "corner", "corner_words", "branch_cautions",
-           "needed_voltage", "series_resistor_advice", "format_resistance", "GROUND"]
+           "needed_voltage", "series_resistor_advice", "format_resistance", "GROUND",
+           "rerun_pump", "schottky_params", "flicker_of_branch", "flicker", "preferred"]
 
 
 def __getattr__(name):
     # the analysis helpers load numpy and the solver: only when a rule asks for them
     if name in ("worst_low", "worst_high", "corner", "corner_words", "branch_cautions",
-                "needed_voltage", "series_resistor_advice"):
+                "needed_voltage", "series_resistor_advice", "rerun_pump", "schottky_params",
+                "flicker_of_branch"):
         from drc import advice
         return getattr(advice, name)
     if name == "format_resistance":
         from drc.preferred import format_resistance
         return format_resistance
+    if name in ("flicker", "preferred"):
+        import importlib
+        return importlib.import_module(f"drc.{name}")
     if name == "GROUND":
         from drc.design import GROUND
         return GROUND

@@ -10,7 +10,7 @@ import sys
 from drc.errors import InputError, InputErrors
 
 FAIL_LEVELS = ("error", "warning", "note", "never")
-EXIT_CLEAN, EXIT_FINDINGS, EXIT_UNUSABLE = 0, 1, 2
+EXIT_CLEAN, EXIT_FINDINGS, EXIT_UNUSABLE, EXIT_INTERNAL = 0, 1, 2, 3
 
 
 class _Parser(argparse.ArgumentParser):
@@ -33,7 +33,7 @@ def _parser() -> argparse.ArgumentParser:
     check.add_argument("--rules", action="append", default=[], metavar="DIR",
                        help="a folder of house rules (repeatable)")
     check.add_argument("--jobs", type=int, default=1, metavar="N")
-    check.add_argument("--quiet", action="store_true", help="only the findings' first lines and the summary")
+    check.add_argument("--quiet", "-q", action="store_true", help="only the findings' first lines and the summary")
     rules = sub.add_parser("rules", help="list every rule")
     rules.add_argument("--format", default="text", choices=("text", "json"))
     rules.add_argument("--rules", action="append", default=[], metavar="DIR")
@@ -64,6 +64,10 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         sys.stderr.write("drc: interrupted\n")
         return 130
+    except Exception as error:   # a fault of drc's own: one line, never a traceback
+        sys.stderr.write(f"drc: internal error: {type(error).__name__}: {error} "
+                         "(a bug in drc: please report it with the netlist)\n")
+        return EXIT_INTERNAL
 
 
 def _check(args) -> int:

@@ -9,6 +9,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from drc import __version__
+from drc.advice import EYE_CAUTION, LITHIUM_CAUTION
 from drc.analysis import Design, analyse, low_nominal_high
 from drc.api import SEVERITIES, Finding
 from drc.context import Context, load_context
@@ -21,11 +22,9 @@ GENERAL_CAUTION = ("A clean report is not a sign-off: a qualified engineer revie
                    "and the parts' datasheets (absolute maximum ratings first) govern over every "
                    "default used here.")
 CAUTIONS = {
-    "lithium": "Lithium cells shorted or reversed can overheat, vent or burn: protect the "
-               "battery path, and follow the cell maker's datasheet.",
+    "lithium": LITHIUM_CAUTION,
     "flashing": "Flashing indicators in the 3 to 60 Hz band can trouble photosensitive people.",
-    "eye": "Ultraviolet, infrared and high-brightness LEDs have eye-safety limits (IEC 62471): "
-           "check the part's datasheet and the standard.",
+    "eye": EYE_CAUTION,
     "mains": "Anything tied to mains, or above safety extra-low voltage, is outside this tool: "
              "follow local codes and licensed practice.",
 }
@@ -88,11 +87,10 @@ def check_file(path: str, config: str | None, rules: list[LoadedRule], extra_fol
             f.rule = rule.id
             f.severity = f.severity if (f.severity in SEVERITIES and "severity" not in own) else severity
             findings.append(f)
-    for location, note in design.notes:
-        pass
     cautions = _cautions(design, findings)
     return FileResult(path, design, findings, _inputs(design, context), design.assumptions,
-                      cautions, [_branch_json(b, design) for b in design.branches], [],
+                      cautions, [_branch_json(b, design) for b in design.branches],
+                      [_pump_json(p, design) for p in design.pumps],
                       flat.sources, ran)
 
 
@@ -126,6 +124,31 @@ def _branch_json(b, design: Design) -> list[dict]:
             entry["note"] = b.note
         out.append(entry)
     return out
+
+
+def _pump_json(p, design: Design) -> dict:
+    n = design.corners.nominal
+    entry = {"id": p.id, "topology": p.topology, "stages": p.stages,
+             "elements": [e.name for e in p.elements], "output_net": p.output_net,
+             "pins": p.pins}
+    r = p.result
+    if r is None:
+        entry["note"] = (p.region.note if p.region is not None and p.region.note else
+                         "not solved: see the branch's note")
+        return entry
+    entry["peak_V"] = low_nominal_high(r.peak_V, n)
+    entry["average_V"] = low_nominal_high(r.average_V, n)
+    entry["ripple_V"] = low_nominal_high(r.ripple_V, n)
+    led = p.region.leds[0]
+    entry["led"] = led.name
+    entry["led_current_A"] = low_nominal_high(r.load_average_A, n)
+    entry["led_peak_A"] = low_nominal_high(r.load_peak_A, n)
+    entry["time_to_visible_s"] = low_nominal_high(r.time_to_visible_s, n)
+    entry["pin_currents"] = {label: {"high_phase_peak_A": low_nominal_high(r.pin_high_peak_A[label], n),
+                                     "low_phase_peak_A": low_nominal_high(r.pin_low_peak_A[label], n),
+                                     "startup_surge_A": low_nominal_high(r.startup_surge_A[label], n)}
+                             for label in p.pins if label in r.pin_high_peak_A}
+    return entry
 
 
 def _cautions(design: Design, findings: list[Finding]) -> list[str]:

@@ -419,14 +419,15 @@ class SeriesResistorChoice:
 def choose_series_resistor(drive_V, fixed_resistance_ohm, stages: Sequence[Stage], temperature_K,
                            low_mask, high_mask, visible_current_A: float, max_current_A: float,
                            series: str = "E24", lowest_ohm: float = 1.0,
-                           highest_ohm: float = 1e6) -> SeriesResistorChoice:
+                           highest_ohm: float = 1e6, candidate_factor=None) -> SeriesResistorChoice:
     """Series-resistor values (from `series`, lowest_ohm..highest_ohm) that keep the LED lit
     and within its maximum at every corner.
 
     Corner arrays have shape (C,); low_mask and high_mask are boolean (C,) arrays (None: all
     corners): the least current over the low corners must be at least visible_current_A and
     the greatest over the high corners at most max_current_A. All candidates are solved at
-    once, corners x candidates.
+    once, corners x candidates. candidate_factor (C,) scales each candidate at each corner
+    (the resistor tolerance).
 
     >>> led = led_model_from_forward_voltages(1.8, 2.0)
     >>> c = choose_series_resistor(np.array([3.0, 3.3]), np.array([40.0, 40.0]), [[led]],
@@ -456,7 +457,10 @@ def choose_series_resistor(drive_V, fixed_resistance_ohm, stages: Sequence[Stage
 
     candidates = preferred.values_between(lowest_ohm, highest_ohm, series)
     added = np.concatenate(([0.0], candidates))                       # column 0: nothing added
-    sol = solve_string(v[:, None], r[:, None] + added[None, :], stages, t[:, None])
+    factor = np.ones(corners) if candidate_factor is None else np.broadcast_to(
+        np.asarray(candidate_factor, dtype=float), (corners,))
+    # each candidate carries the corners' resistor tolerance, as the resistor it replaces did
+    sol = solve_string(v[:, None], r[:, None] + added[None, :] * factor[:, None], stages, t[:, None])
     current = sol.current_A                                            # (C, 1 + K)
     low_current = np.min(np.where(low[:, None], current, np.inf), axis=0)
     high_current = np.max(np.where(high[:, None], current, -np.inf), axis=0)

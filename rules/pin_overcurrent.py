@@ -18,7 +18,7 @@ Sources: common practice (port pins of small CMOS controllers, 20 to 25 mA absol
 
 import numpy as np
 
-from drc.api import Rule, corner, finding, format_quantity, format_resistance, worst_high
+from drc.api import Rule, corner, finding, format_quantity, format_resistance, preferred, worst_high
 
 RULE = Rule(id="pin-overcurrent", severity="error",
             summary="a port pin past its current limit: steady, per phase, or the start-up surge",
@@ -43,7 +43,8 @@ def check(design, settings):
         at = source if source is not None else pin.location
         extra = drive_V / pin.max_current_A - pin.output_resistance_ohm if drive_V > 0 else 0.0
         if extra > 0:
-            fix = (f"add at least {format_resistance(extra)} in series on {label} (E24 at or above), "
+            value = preferred.at_or_above(extra, "E24")
+            fix = (f"add at least {format_resistance(value)} (E24, IEC 60063) in series on {label}, "
                    "then check the LEDs' headroom again")
         else:
             fix = f"add a series resistor on {label} or move a branch to another pin"

@@ -136,9 +136,6 @@ def test_headroom_fires_at_the_low_corner_and_its_fix_clears_it(tmp_path):
     assert not of_rule(check(fixed), "led-headroom")
 
 
-@pytest.mark.xfail(strict=True, reason="the E24 fix is chosen without the resistor tolerance: "
-                   "'use 68 ohm ... under 20.0 mA at every corner', but 68 ohm at -5 % gives "
-                   "20.06 mA at 3.3 V, 60 degC (ngspice: 20.06 mA), so led-overcurrent fires")
 def test_headroom_fix_keeps_every_corner_within_the_maximum(tmp_path):
     [f] = of_rule(check(HERE / "headroom_coin.cir"), "led-headroom")
     value = named_ohm(f["fix"])
@@ -203,7 +200,7 @@ def test_overcurrent_fires_at_the_high_corner_and_its_fix_clears_it(tmp_path):
     # IEC 60063: E24
     assert in_e24(value), f["fix"]
     # with the resistor tolerance taken out, the named value clears it (with it in, it does
-    # not: see the xfail below)
+    # not)
     fixed = rewrite("overcurrent_rail", tmp_path, lambda t: set_value(t, "R1", value))
     config = fixed.with_suffix(".toml")
     config.write_text(config.read_text().replace('resistor = "5 %"', 'resistor = "0 %"'))
@@ -212,9 +209,6 @@ def test_overcurrent_fires_at_the_high_corner_and_its_fix_clears_it(tmp_path):
     assert after["summary"]["error"] == 0, after["findings"]
 
 
-@pytest.mark.xfail(strict=True, reason="the E24 fix is chosen without the resistor tolerance: "
-                   "'use 75 ohm ... under 20.0 mA at every corner', but 75 ohm at -5 % still "
-                   "exceeds 20 mA at 3.465 V, 60 degC, so led-overcurrent fires again")
 def test_overcurrent_fix_holds_at_the_tolerance_end(tmp_path):
     [f] = of_rule(check(HERE / "overcurrent_rail.cir"), "led-overcurrent")
     value = named_ohm(f["fix"])
@@ -299,9 +293,6 @@ def test_pin_overcurrent_fires_and_the_named_resistance_clears_it(tmp_path):
     assert after["summary"]["error"] == 0, after["findings"]
 
 
-@pytest.mark.xfail(strict=True, reason="pin-overcurrent's fix names the raw resistance "
-                   "(drive_V / max_current - output resistance, e.g. 235 ohm), not an E24 value, "
-                   "though its own doc says 'Fix: an E24 series resistor'")
 def test_pin_overcurrent_fix_names_an_e24_value():
     [f] = of_rule(check(HERE / "pin_overcurrent.cir"), "pin-overcurrent")
     # IEC 60063: E24
@@ -312,9 +303,6 @@ def test_pin_overcurrent_silent_within_the_limit():
     assert not of_rule(check(HERE / "pin_source.cir"), "pin-overcurrent")
 
 
-@pytest.mark.xfail(strict=True, reason="two strings on one pin are each solved with the pin's "
-                   "whole output resistance as if alone: 7.13 mA each against ngspice's 5.95 mA, "
-                   "so pin-overcurrent reports 14.3 mA where ngspice gives 11.9 mA (limit 12 mA)")
 def test_two_strings_on_one_pin_share_its_output_resistance():
     ngspice.require_ngspice()
     path = HERE / "pin_shared.cir"
