@@ -21,6 +21,8 @@ def format_si(value: float, unit: str, digits: int = 3) -> str:
     if unit in ("V", "%", "°C", "") or value == 0:
         return f"{value:.{max(digits - 1, 0)}f} {unit}".rstrip()
     magnitude = abs(value)
+    if magnitude < 1e-15:
+        return f"under 1 f{unit}" if value > 0 else f"{'-' if value < 0 else ''}0 {unit}"
     for scale, prefix in _PREFIXES:
         if magnitude >= scale * 0.9995:
             return f"{value / scale:.{_decimals(value / scale, digits)}f} {prefix}{unit}"

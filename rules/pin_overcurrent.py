@@ -1,28 +1,35 @@
 """What it finds: a port pin driven past its current limit: steadily by the LED branches on
-it, in a phase of its drive, or by the start-up surge into an empty pump capacitor.
+it, in a phase of its drive (a pump's pin sources current while high and sinks it while
+low), or by the start-up surge into an empty pump capacitor.
 
 Why it matters: a small controller's pin is rated some 20 to 25 mA absolute; past it the
-output stage degrades, its levels sag, and the package's total may be exceeded.
+output stage degrades, its levels sag, and the package's total may be exceeded. The first
+charge phase of a pump meets an empty capacitor, so the pin sees about
+(Vpin - Vd) / (the loop's resistance): with no series resistor, tens of milliamps.
 
 How it is computed: each branch on the pin is solved at every corner, phase by phase, with
-the pin's output resistance; the currents of the branches on one pin are added (they share
-its phases) and the greatest is compared with the pin's max_current (from its [pin] table,
-else the built-in pin profile).
+the pin's output resistance; the branches on one pin are solved together (they share its
+output resistance). For a pump, the periodic model gives the pin's peak current in each
+phase and, from its first cycles with every capacitor empty, the start-up surge. The fix's
+E24 resistor is checked by re-running the model, which also says what it costs the LED.
 
-Example: a red LED from the battery straight into a sinking pin: about 24 mA on fresh cells.
+Example: a doubler lifted by a pin straight into a 10 µF capacitor: about 50 mA at start-up.
 
-Fix: an E24 series resistor that brings the pin under its limit.
+Fix: an E24 (IEC 60063) series resistor on the pin, with what it costs in boost.
 
-Sources: common practice (port pins of small CMOS controllers, 20 to 25 mA absolute).
+Sources: common practice (port pins of small CMOS controllers, 20 to 25 mA absolute); the
+capacitor charging law v(t) = V(1 - exp(-t/RC)).
 """
 
 import numpy as np
 
-from drc.api import Rule, corner, finding, format_quantity, format_resistance, preferred, worst_high
+from drc.api import (Rule, corner, finding, format_quantity, format_resistance, preferred,
+                     rerun_pump, worst_high, worst_low)
 
 RULE = Rule(id="pin-overcurrent", severity="error",
             summary="a port pin past its current limit: steady, per phase, or the start-up surge",
-            sources=("common practice: small CMOS port pins are rated 20 to 25 mA absolute",))
+            sources=("common practice: small CMOS port pins are rated 20 to 25 mA absolute",
+                     "capacitor charging law v(t) = V(1 - exp(-t/RC))"))
 
 
 def check(design, settings):
@@ -37,19 +44,79 @@ def check(design, settings):
         i = worst_high(current)
         if current[i] <= pin.max_current_A:
             continue
-        drive_V = float(np.max(pin.high_V)) if np.size(pin.high_V) else 0.0
-        elements = sorted({e.name for b in branches for e in b.elements})
-        source = design.element(pin.source) if pin.source else None
-        at = source if source is not None else pin.location
-        extra = drive_V / pin.max_current_A - pin.output_resistance_ohm if drive_V > 0 else 0.0
-        if extra > 0:
-            value = preferred.at_or_above(extra, "E24")
-            fix = (f"add at least {format_resistance(value)} (E24, IEC 60063) in series on {label}, "
-                   "then check the LEDs' headroom again")
-        else:
-            fix = f"add a series resistor on {label} or move a branch to another pin"
-        yield finding(at, f"pin {label} delivers {format_quantity(float(current[i]), 'A')} at the high "
-                      f"corner, above its {format_quantity(pin.max_current_A, 'A')} limit",
-                      elements=elements, nets=[pin.net], corner=corner(design, i),
+        pumped = [b for b in branches if b.drive == "pump"]
+        where = _phase_words(pumped[0], label, i) if pumped else ""
+        yield finding(_at(design, pin),
+                      f"pin {label} carries {format_quantity(float(current[i]), 'A')}{where} at the "
+                      f"high corner, above its {format_quantity(pin.max_current_A, 'A')} limit",
+                      elements=sorted({e.name for b in branches for e in b.elements}), nets=[pin.net],
+                      corner=corner(design, i),
                       values={"current_A": float(current[i]), "max_current_A": pin.max_current_A},
-                      fix=fix)
+                      fix=_fix(design, pin, pumped, float(current[i])))
+    for pump in design.pumps:
+        result = pump.result
+        if result is None:
+            continue
+        for label in pump.pins:
+            if label not in result.startup_surge_A:
+                continue
+            pin = design.pins[label]
+            surge = result.startup_surge_A[label]
+            i = worst_high(surge)
+            if surge[i] <= pin.max_current_A:
+                continue
+            yield finding(_at(design, pin),
+                          f"pin {label} takes a start-up surge of {format_quantity(float(surge[i]), 'A')} "
+                          f"into the empty pump capacitor {pump.id}, above its "
+                          f"{format_quantity(pin.max_current_A, 'A')} limit",
+                          elements=[e.name for e in pump.elements], nets=[pin.net],
+                          corner=corner(design, i),
+                          values={"startup_surge_A": float(surge[i]), "max_current_A": pin.max_current_A},
+                          fix=_fix(design, pin, [b for b in design.branches if b.pump_region is pump.region],
+                                   float(surge[i]), surge=True))
+
+
+def _at(design, pin):
+    source = design.element(pin.source) if pin.source else None
+    return source if source is not None else pin.location
+
+
+def _phase_words(branch, label, i):
+    r = branch.pump_region.result
+    high = float(r.pin_high_peak_A[label][i]) if label in r.pin_high_peak_A else 0.0
+    low = float(r.pin_low_peak_A[label][i]) if label in r.pin_low_peak_A else 0.0
+    return " while high (sourcing)" if high >= low else " while low (sinking)"
+
+
+def _fix(design, pin, pumped, current, surge=False):
+    drive_V = float(np.max(pin.high_V)) if np.size(pin.high_V) else 0.0
+    extra = drive_V / pin.max_current_A - pin.output_resistance_ohm if drive_V > 0 else 0.0
+    if extra <= 0:
+        return f"add a series resistor on {pin.label}, or move a branch to another pin"
+    value = preferred.at_or_above(extra, "E24")
+    if not pumped:
+        return (f"add at least {format_resistance(value)} (E24, IEC 60063) in series on {pin.label}, "
+                "then check the LEDs' headroom again")
+    branch = pumped[0]
+    pump = branch.pump_region.pumps[0]
+    led = branch.pump_region.leds[0]
+    before = branch.current_A[led.name]
+    low = worst_low(before)
+    for _ in range(8):
+        try:
+            r = rerun_pump(design, pump, series_ohm={pin.label: value})
+        except Exception:
+            break
+        worst = max(float(np.max(r.startup_surge_A.get(pin.label, 0.0))),
+                    float(np.max(np.maximum(r.pin_high_peak_A.get(pin.label, 0.0),
+                                            r.pin_low_peak_A.get(pin.label, 0.0)))))
+        if worst <= pin.max_current_A:
+            after = float(r.load_average_A[low])
+            cost = 100.0 * (1 - after / float(before[low])) if before[low] > 0 else 0.0
+            return (f"add {format_resistance(value)} (E24, IEC 60063) in series on {pin.label}: the model "
+                    f"re-run keeps it under {format_quantity(pin.max_current_A, 'A')}, and it costs "
+                    f"{led.name} {cost:.0f} % of its average current at the low corner "
+                    f"({format_quantity(float(before[low]), 'A')} to {format_quantity(after, 'A')})")
+        value = preferred.at_or_above(value * 1.2, "E24")
+    return (f"a series resistor of at least {format_resistance(value)} on {pin.label}; re-run the check "
+            "with it, as it costs the pump some boost")
