@@ -1060,10 +1060,18 @@ def _share(a_kind, a_part, a_high, k_kind, k_part, k_high) -> float:
     return 1.0
 
 
+_DIODE_PARAMS: dict = {}
+
+
 def diode_params(flat: FlatDesign, e: Element) -> DiodeParams:
     """A diode element's SPICE parameters from its .model (SPICE defaults where none)."""
     model = flat.models.get(e.model) if e.model else None
-    return DiodeParams.from_model(model.params if model else {}, e.value or 1.0)
+    key = (id(model), e.value)
+    found = _DIODE_PARAMS.get(key)
+    if found is None or found[0] is not model:
+        found = (model, DiodeParams.from_model(model.params if model else {}, e.value or 1.0))
+        _DIODE_PARAMS[key] = found
+    return found[1]
 
 
 def solve_branch(b: Branch, corners: Corners, flat: FlatDesign) -> None:
@@ -1306,5 +1314,5 @@ def _solve_network_phases(b: Branch, corners: Corners, flat: FlatDesign) -> None
 
 def low_nominal_high(values: np.ndarray, nominal: int) -> dict[str, float]:
     """The contract's {low, nominal, high} of a per-corner array."""
-    return {"low": float(np.min(values)), "nominal": float(values[nominal]),
-            "high": float(np.max(values))}
+    return {"low": float(values.min()), "nominal": float(values[nominal]),
+            "high": float(values.max())}

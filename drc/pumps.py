@@ -54,6 +54,7 @@ class PumpRegion:
     pumps: list[Pump] = field(default_factory=list)
     result: object = None           # pumpmodel.PumpResult (first LED as the load)
     note: str | None = None
+    signature: object = None        # the same for identical cells (drc.memo)
 
 
 def classify(region_elements: list[Element], pin_nets: dict, rail_nets: dict,
@@ -212,6 +213,8 @@ def simulate(region: PumpRegion, corners, diode_params, fast: bool = False, **ch
     output = region.pumps[0].output_net if region.pumps else load.element.nodes[0]
     options = {"simulated_startup_periods": 3} if fast else {}
     key, canon = _signature(network, corners, output, load, fast)
+    if not changes or set(changes) == {"sel"}:
+        region.signature = key        # identical cells share it: fixes are worked out once
     known = SOLUTIONS.get(key)
     if known is not None:
         return _renamed(known, network, canon)

@@ -66,7 +66,27 @@ def _lights(design, pump, led, **changes):
     return float(np.min(r.load_average_A))
 
 
+_FIXES = {}       # pump cell signature -> the fix's words with the names as placeholders
+
+
 def _fix(design, pump, led):
+    key = pump.region.signature
+    names = [led.name] + [e.name for e in pump.elements]
+    if key is not None and key in _FIXES:
+        text = _FIXES[key]
+        for k, name in enumerate(names):
+            text = text.replace(f"\x00{k}\x00", name)
+        return text
+    text = _work_out(design, pump, led)
+    if key is not None:
+        template = text
+        for k, name in sorted(enumerate(names), key=lambda kn: -len(kn[1])):
+            template = template.replace(name, f"\x00{k}\x00")
+        _FIXES[key] = template
+    return text
+
+
+def _work_out(design, pump, led):
     tried = []
     for scale in (2.2, 4.7, 10.0):
         changes = {"capacitor_scale": {c.key: scale for c in pump.capacitors}}
@@ -77,6 +97,15 @@ def _fix(design, pump, led):
             return (f"a {format_quantity(value, 'F')} pumping capacitor in place of "
                     f"{format_quantity(pump.capacitors[0].value, 'F')} gives {format_quantity(low, 'A')} "
                     "at the low corner (the model re-run); check the pins' surge again")
+    frequency = next((p.frequency_Hz for p in pump.region.pins if p.drive == "toggle"), None)
+    if frequency:
+        for scale in (0.5, 0.25):
+            low = _lights(design, pump, led, frequency_scale=scale)
+            tried.append(f"{frequency * scale:g} Hz toggling: {format_quantity(low or 0, 'A')}")
+            if low is not None and low >= led.visible_current_A:
+                return (f"toggling the pins at {frequency * scale:g} Hz in place of {frequency:g} Hz "
+                        f"(phases of {0.5e3 / (frequency * scale):g} ms) gives {format_quantity(low, 'A')} "
+                        "at the low corner (the model re-run); check flicker and the pins' surge again")
     silicon = [d for d in ([pump.charge_diode] + pump.transfer_diodes) if d is not None]
     if silicon:
         low = _lights(design, pump, led, diode_override={d.key: schottky_params() for d in silicon})

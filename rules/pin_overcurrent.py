@@ -32,7 +32,14 @@ RULE = Rule(id="pin-overcurrent", severity="error",
                      "capacitor charging law v(t) = V(1 - exp(-t/RC))"))
 
 
+_OUTCOMES = {}      # (pump cell signature, pin index) -> (ohm, before, after) or None
+
+
 def check(design, settings):
+    fed = {}
+    for b in design.branches:
+        if b.pump_region is not None:
+            fed.setdefault(id(b.pump_region), []).append(b)
     totals = {}
     for branch in design.branches:
         for label, current in branch.pin_current_A.items():
@@ -72,8 +79,7 @@ def check(design, settings):
                           elements=[e.name for e in pump.elements], nets=[pin.net],
                           corner=corner(design, i),
                           values={"startup_surge_A": float(surge[i]), "max_current_A": pin.max_current_A},
-                          fix=_fix(design, pin, [b for b in design.branches if b.pump_region is pump.region],
-                                   float(surge[i]), surge=True))
+                          fix=_fix(design, pin, fed.get(id(pump.region), []), float(surge[i]), surge=True))
 
 
 def _at(design, pin):
@@ -98,10 +104,33 @@ def _fix(design, pin, pumped, current, surge=False):
         return (f"add at least {format_resistance(value)} (E24, IEC 60063) in series on {pin.label}, "
                 "then check the LEDs' headroom again")
     branch = pumped[0]
-    pump = branch.pump_region.pumps[0]
-    led = branch.pump_region.leds[0]
+    region = branch.pump_region
+    pump = region.pumps[0]
+    led = region.leds[0]
     before = branch.current_A[led.name]
     low = worst_low(before)
+    index = [p.label for p in region.pins].index(pin.label) if pin.label in [p.label for p in region.pins] else -1
+    key = (region.signature, index) if region.signature is not None else None
+    if key is not None and key in _OUTCOMES:
+        outcome = _OUTCOMES[key]
+    else:
+        outcome = _search(design, pin, pump, value, low)
+        if key is not None:
+            _OUTCOMES[key] = outcome
+    if outcome is None:
+        return (f"a series resistor of at least {format_resistance(value)} on {pin.label}; re-run the "
+                "check with it, as it costs the pump some boost")
+    value, after = outcome
+    cost = 100.0 * (1 - after / float(before[low])) if before[low] > 0 else 0.0
+    return (f"add {format_resistance(value)} (E24, IEC 60063) in series on {pin.label}: the model "
+            f"re-run keeps it under {format_quantity(pin.max_current_A, 'A')}, and it costs "
+            f"{led.name} {cost:.0f} % of its average current at the low corner "
+            f"({format_quantity(float(before[low]), 'A')} to {format_quantity(after, 'A')})")
+
+
+def _search(design, pin, pump, value, low):
+    """The least E24 value from `value` up that the model shows to keep the pin within its
+    limit, and the LED's average current at the low corner with it; None if none of 8 does."""
     for _ in range(8):
         try:
             r = rerun_pump(design, pump, series_ohm={pin.label: value})
@@ -111,12 +140,6 @@ def _fix(design, pin, pumped, current, surge=False):
                     float(np.max(np.maximum(r.pin_high_peak_A.get(pin.label, 0.0),
                                             r.pin_low_peak_A.get(pin.label, 0.0)))))
         if worst <= pin.max_current_A:
-            after = float(r.load_average_A[low])
-            cost = 100.0 * (1 - after / float(before[low])) if before[low] > 0 else 0.0
-            return (f"add {format_resistance(value)} (E24, IEC 60063) in series on {pin.label}: the model "
-                    f"re-run keeps it under {format_quantity(pin.max_current_A, 'A')}, and it costs "
-                    f"{led.name} {cost:.0f} % of its average current at the low corner "
-                    f"({format_quantity(float(before[low]), 'A')} to {format_quantity(after, 'A')})")
+            return value, float(r.load_average_A[low])
         value = preferred.at_or_above(value * 1.2, "E24")
-    return (f"a series resistor of at least {format_resistance(value)} on {pin.label}; re-run the check "
-            "with it, as it costs the pump some boost")
+    return None
