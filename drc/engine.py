@@ -16,6 +16,7 @@ from drc.context import Context, load_context
 from drc.errors import InputError, InputErrors, Location
 from drc.expand import Limits, expand
 from drc.registry import LoadedRule, load_rules
+from drc.running import run_rules
 
 NETLIST_PATTERNS = ("*.cir", "*.sp", "*.net", "*.spice")
 GENERAL_CAUTION = ("A clean report is not a sign-off: a qualified engineer reviews the design, "
@@ -73,20 +74,7 @@ def check_file(path: str, config: str | None, rules: list[LoadedRule], extra_fol
                     include_folders=tuple(context.limits.include_folders))
     flat = expand(path, limits)
     design = analyse(flat, context)
-    findings: list[Finding] = []
-    ran = []
-    for rule in rules:
-        settings = dict(rule.rule.settings)
-        own = context.rules.get(rule.id, {})
-        if own.get("enabled", True) is False:
-            continue
-        settings.update({k: v for k, v in own.items() if k not in ("enabled", "severity")})
-        severity = own.get("severity", rule.rule.severity)
-        ran.append(rule.id)
-        for f in rule.check(design, settings) or ():
-            f.rule = rule.id
-            f.severity = f.severity if (f.severity in SEVERITIES and "severity" not in own) else severity
-            findings.append(f)
+    findings, ran = run_rules(design, rules, context)
     cautions = _cautions(design, findings)
     return FileResult(path, design, findings, _inputs(design, context), design.assumptions,
                       cautions, [_branch_json(b, design) for b in design.branches],
