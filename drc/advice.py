@@ -33,8 +33,9 @@ def _choose(drive, fixed, stages, temperature_K, visible_A, max_A, factor):
 
 LITHIUM_CAUTION = ("Lithium cells shorted or reversed can overheat, vent or burn: protect the "
                    "battery path and follow the cell maker's datasheet.")
-EYE_CAUTION = ("Infrared, ultraviolet and high-brightness LEDs have eye-safety limits (IEC 62471): "
-               "the part's datasheet and the standard govern.")
+EYE_CAUTION = ("Infrared, ultraviolet and high-brightness LEDs have eye-safety limits (IEC 62471); "
+               "blue and white parts carry a blue-light hazard at high brightness (indicator parts "
+               "are usually in the exempt group): the datasheet's risk group and the standard govern.")
 
 
 def worst_low(values: np.ndarray) -> int:
@@ -113,7 +114,8 @@ def series_resistor_advice(design: Design, branch: Branch, led: Led, goal: str =
         if cap.acceptable_ohm:
             return (f"use at least {preferred.format_resistance(cap.acceptable_ohm[0])} (E24, IEC 60063) "
                     f"in place of {have} to stay under {format_si(led.max_current_A, 'A')} at the high "
-                    f"corner; no resistor also keeps it visible at the low corner (see led-headroom)")
+                    f"corner; no value does that and also keeps it visible at the low corner "
+                    f"(see led-headroom)")
     if choice.verdict == "too-dim":
         best = choice.zero_added_low_current_A * share
         lift = needed_voltage(design, branch, led.visible_current_A / share, worst_low(drive))
@@ -177,3 +179,44 @@ def flicker_of_branch(design: Design, branch: Branch, led: Led):
     # a square drive: lit for `share` of the period at the lit current, else at the rest
     rest = (average[n] - share * lit[n]) / max(1 - share, 1e-12) if share < 1 else lit[n]
     return pins[0].frequency_Hz, modulation_percent([lit[n], max(rest, 0.0)])
+
+
+# ---------------------------------------------------------------------------- for rules (drc.api)
+
+def diode_params_of(design: Design, element):
+    """A diode element's SPICE parameters (IS, N, RS, XTI, EG, TNOM_C, BV, IBV; SI) from its
+    .model, SPICE's defaults where it gives none; an LED's are `led.params`."""
+    return diode_params(design.flat, element)
+
+
+def forward_voltage(params, current_A, temperature_K):
+    """The forward voltage (V) that carries `current_A` at `temperature_K`, by the SPICE diode
+    law with RS; arrays in, arrays out."""
+    return voltage_at_current(params, current_A, temperature_K)
+
+
+def saturation_current_at(params, temperature_K):
+    """The diode's saturation current IS (A) at `temperature_K` (SPICE2 temperature law):
+    about its reverse leakage below breakdown."""
+    from drc.diode import saturation_current
+    return saturation_current(params, temperature_K)
+
+
+def nearest_preferred(value: float, series: str = "E24") -> float:
+    """The value of an IEC 60063 series ("E6" to "E192") nearest `value` in ratio."""
+    return preferred.nearest(value, series)
+
+
+def is_preferred(value: float, series: str = "E24", rel: float = 1e-6) -> bool:
+    """Whether `value` (> 0) is a value of an IEC 60063 series, within `rel` of it."""
+    if value is None or not value > 0:
+        return False
+    near = preferred.nearest(value, series)
+    return abs(near - value) <= rel * near
+
+
+def is_schottky(design: Design, element) -> bool:
+    """A diode that drops under 0.45 V at 1 mA at the nominal temperature (a Schottky)."""
+    params = diode_params(design.flat, element)
+    t = float(design.corners.temperature_K[design.corners.nominal])
+    return float(voltage_at_current(params, 1e-3, t)) < 0.45

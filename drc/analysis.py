@@ -35,6 +35,9 @@ SERIES_KINDS = frozenset("RLD")
 # ---------------------------------------------------------------------------- corners
 
 
+_SERIALS = itertools.count(1)
+
+
 @dataclass(frozen=True)
 class Corners:
     """Every combination of each supply's range ends and nominal, the temperature range's
@@ -52,6 +55,14 @@ class Corners:
         return int(self.temperature_C.shape[0])
 
     @property
+    def serial(self) -> int:
+        """A number no other corner set in this process has (a cache key)."""
+        found = self.__dict__.get("_serial")
+        if found is None:
+            found = self.__dict__["_serial"] = next(_SERIALS)
+        return found
+
+    @property
     def shown(self) -> list[str]:
         """The supplies a corner names: those that vary (all of them when none does and
         there are few)."""
@@ -65,7 +76,10 @@ class Corners:
 
     @property
     def temperature_K(self) -> np.ndarray:
-        return self.temperature_C + ZERO_CELSIUS_K
+        cached = self.__dict__.get("_kelvin")
+        if cached is None:
+            cached = self.__dict__["_kelvin"] = self.temperature_C + ZERO_CELSIUS_K
+        return cached
 
     def reduce(self, supplies, capacitors: bool = False) -> tuple[np.ndarray, np.ndarray]:
         """(sel, inverse): representative corner indices for the distinct combinations of the
@@ -571,7 +585,12 @@ def _pulse_timing(e: Element) -> tuple[float, float, float, float]:
     if v2 >= v1:
         high, low = v2, v1
         start = td + tr / 2
+        # high from the middle of its rising edge to the middle of its falling one, and never
+        # past the period's end: a PULSE holds its first level until its delay, so the high
+        # phase does not wrap round to t = 0 (what the start-up from rest would see)
         width = pw + (tr + tf) / 2
+        if start < per:
+            width = min(width, per - start)
     else:
         high, low = v1, v2
         start = td + tr + pw + tf / 2
@@ -880,7 +899,8 @@ def _pump_branch(branch, r_nets, r_elements, region_leds, pin_nets, rail_nets, t
     region_pins = [pin_nets[n] for n in touched if n in pin_nets]
     region_rails = [rail_nets[n] for n in touched if n in rail_nets]
     region = PumpRegion(sorted(r_nets), r_elements, region_pins, region_rails, region_leds)
-    region.pumps = classify(r_elements, pin_nets, rail_nets, toggling, pin_labels)
+    region.pumps = classify(r_elements, pin_nets, rail_nets, toggling, pin_labels,
+                            leds={l.element.key for l in region_leds})
     for pump in region.pumps:
         pump.region = region
     branch.drive = "pump"
@@ -982,9 +1002,21 @@ def _end_voltage(net: str, rail_nets, pin_nets):
     return "other", None
 
 
+_DRIVES: dict = {}      # one drive array per pair of ends: shared by the strings on them
+_ZEROS: dict = {}
+
+
+def _zeros(count: int) -> np.ndarray:
+    found = _ZEROS.get(count)
+    if found is None:
+        found = _ZEROS[count] = np.zeros(count)
+        found.setflags(write=False)
+    return found
+
+
 def _classify(b: Branch, rail_nets, pin_nets, corners: Corners) -> None:
     count = corners.count
-    zero = np.zeros(count)
+    zero = _zeros(count)
     a_kind, a_part = _end_voltage(b.anode_net, rail_nets, pin_nets)
     k_kind, k_part = _end_voltage(b.cathode_net, rail_nets, pin_nets)
     # the orientation: a string whose anode end sits at ground and cathode at a rail or pin
@@ -1016,7 +1048,12 @@ def _classify(b: Branch, rail_nets, pin_nets, corners: Corners) -> None:
             share = _share(a_kind, a_part, ah, k_kind, k_part, kh)
             if share <= 0:
                 continue
-            v = sign * (level(a_kind, a_part, ah) - level(k_kind, k_part, kh))
+            la, lk = level(a_kind, a_part, ah), level(k_kind, k_part, kh)
+            drive_key = (id(la), id(lk), sign)
+            v = _DRIVES.get(drive_key)
+            if v is None or v[0] is not la or v[1] is not lk:
+                v = _DRIVES[drive_key] = (la, lk, sign * (la - lk))
+            v = v[2]
             words = " and ".join(w for w in (
                 f"{a_part.label} {'high' if ah else 'low'}" if a_kind == "pin" else "",
                 f"{k_part.label} {'high' if kh else 'low'}" if k_kind == "pin" else "") if w) or "always"
@@ -1093,8 +1130,8 @@ def solve_branch(b: Branch, corners: Corners, flat: FlatDesign) -> None:
             else:
                 stage.append(diode_params(flat, d))
         stages.append(stage)
-    key = (tuple(tuple(st) for st in stages), value_key(b.series_resistance_ohm), value_key(t),
-           tuple((ph.share, value_key(ph.drive_V), ph.extra_resistance_ohm) for ph in b.phases),
+    key = (tuple(tuple(st) for st in stages), float(b.series_resistance_ohm[corners.nominal]),
+           corners.serial, tuple((ph.share, id(ph.drive_V), ph.extra_resistance_ohm) for ph in b.phases),
            tuple(tuple(d.key in led_params for d in st) for st in b.stages), b.reversed,
            tuple(p is not None for p in (b.pin, b.sink_pin)))
     known = STRING_SOLUTIONS.get(key)

@@ -58,14 +58,16 @@ class PumpRegion:
 
 
 def classify(region_elements: list[Element], pin_nets: dict, rail_nets: dict,
-             toggling: set | None = None, pin_labels: set | None = None) -> list[Pump]:
+             toggling: set | None = None, pin_labels: set | None = None,
+             leds: set | None = None) -> list[Pump]:
     """The pumps among a region's elements: chains of pumping capacitors joined by diodes."""
     if toggling is None:
         toggling = {n for n, p in pin_nets.items() if p.drive == "toggle"}
     if pin_labels is None:
         pin_labels = {p.label for p in pin_nets.values()}
     caps = [e for e in region_elements if e.kind == "C" and len(e.nodes) == 2]
-    diodes = [e for e in region_elements if e.kind == "D"]
+    # the LED is the load, never a charge or transfer diode
+    diodes = [e for e in region_elements if e.kind == "D" and e.key not in (leds or ())]
     pumped: dict[str, Element] = {}
     for c in caps:
         a, b = c.nodes

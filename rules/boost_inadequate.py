@@ -24,8 +24,8 @@ SPICE2 diode temperature law; Talbot-Plateau law (average current as brightness)
 
 import numpy as np
 
-from drc.api import (Rule, branch_cautions, corner, finding, format_quantity, rerun_pump,
-                     schottky_params, worst_low)
+from drc.api import (Rule, branch_cautions, corner, finding, format_quantity, is_schottky,
+                     preferred, rerun_pump, schottky_params, worst_low)
 
 RULE = Rule(id="boost-inadequate", severity="error",
             summary="a pump whose output cannot light its LED at the low corner",
@@ -88,14 +88,16 @@ def _fix(design, pump, led):
 
 def _work_out(design, pump, led):
     tried = []
-    for scale in (2.2, 4.7, 10.0):
+    present = pump.capacitors[0].value
+    larger = [v for v in preferred.values_between(present * 1.5, present * 10.5, "E6")][:4]
+    for value in larger:
+        scale = value / present
         changes = {"capacitor_scale": {c.key: scale for c in pump.capacitors}}
         low = _lights(design, pump, led, **changes)
-        value = pump.capacitors[0].value * scale
         tried.append(f"{format_quantity(value, 'F')} pumping capacitor: {format_quantity(low or 0, 'A')}")
         if low is not None and low >= led.visible_current_A:
-            return (f"a {format_quantity(value, 'F')} pumping capacitor in place of "
-                    f"{format_quantity(pump.capacitors[0].value, 'F')} gives {format_quantity(low, 'A')} "
+            return (f"a {format_quantity(value, 'F')} pumping capacitor (E6, IEC 60063) in place of "
+                    f"{format_quantity(present, 'F')} gives {format_quantity(low, 'A')} "
                     "at the low corner (the model re-run); check the pins' surge again")
     frequency = next((p.frequency_Hz for p in pump.region.pins if p.drive == "toggle"), None)
     if frequency:
@@ -106,7 +108,8 @@ def _work_out(design, pump, led):
                 return (f"toggling the pins at {frequency * scale:g} Hz in place of {frequency:g} Hz "
                         f"(phases of {0.5e3 / (frequency * scale):g} ms) gives {format_quantity(low, 'A')} "
                         "at the low corner (the model re-run); check flicker and the pins' surge again")
-    silicon = [d for d in ([pump.charge_diode] + pump.transfer_diodes) if d is not None]
+    silicon = [d for d in ([pump.charge_diode] + pump.transfer_diodes)
+               if d is not None and not is_schottky(design, d)]
     if silicon:
         low = _lights(design, pump, led, diode_override={d.key: schottky_params() for d in silicon})
         tried.append(f"Schottky diodes: {format_quantity(low or 0, 'A')}")

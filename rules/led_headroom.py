@@ -42,15 +42,21 @@ def check(design, settings):
                 continue
             share = branch.phases[branch.lit_phase].share
             drive_V, _ = branch.on_drive()
-            what = "pin" if branch.drive == "pin" else "rail"
+            if branch.sink_pin is not None and branch.pin is None:
+                rail = branch.supply.label if branch.supply is not None else "its rail"
+                what_gives = f"{rail}, into pin {branch.sink_pin.label} held low, gives"
+            elif branch.drive == "pin":
+                what_gives = f"its pin {branch.source} gives"
+            else:
+                what_gives = f"its rail {branch.source} gives"
             values = {"current_A": float(current[i]), "visible_current_A": led.visible_current_A,
                       "available_V": float(drive_V[i])}
             if branch.stages:
                 needed = needed_voltage(design, branch, led.visible_current_A / max(share, 1e-9), i)
                 values["needed_V"] = needed
                 message = (f"{led.name} needs {needed:.2f} V to reach "
-                           f"{format_quantity(led.visible_current_A, 'A')} but its {what} "
-                           f"{branch.source} gives {float(drive_V[i]):.2f} V at the low corner "
+                           f"{format_quantity(led.visible_current_A, 'A')} but {what_gives} "
+                           f"{float(drive_V[i]):.2f} V at the low corner "
                            f"({format_quantity(float(current[i]), 'A')} on average)")
             else:
                 message = (f"{led.name} gets {format_quantity(float(current[i]), 'A')} at the low "

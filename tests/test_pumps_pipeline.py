@@ -1,0 +1,367 @@
+"""Charge pumps through the whole pipeline (netlist + config -> drc's report), checked
+against ngspice `.tran ... uic` (the reference simulator, Debian's package) and against
+facts of the trade. Circuits are scenarios of our own (tests/netlists/pumps/) and the two
+pump samples (samples/).
+
+The ngspice deck is written from the netlist text here, not from drc's own network: each
+pin's source gets the pin's output resistance (its [pin] table, else the built-in 40 ohm)
+as a resistor and PULSE levels of 0 V and its supply's voltage at the corner; each rail's
+DC value is the corner's; resistors and capacitors are scaled by the corner's tolerance;
+ngspice runs at the corner's temperature. drc's figures are read per corner from
+`design.pumps[k].result` (arrays over every corner).
+"""
+
+from __future__ import annotations
+
+import json
+import re
+import tomllib
+from concurrent.futures import ThreadPoolExecutor
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from ngspice import require_ngspice, tran
+
+
+ROOT = Path(__file__).resolve().parent.parent
+PUMPS = ROOT / "tests" / "netlists" / "pumps"
+SAMPLES = ROOT / "samples"
+BUILTIN_PIN_OHM = 40.0          # the contract's built-in pin profile
+
+# Tolerances the brief sets for drc against ngspice.
+PEAK_TOL = 0.05
+CURRENT_TOL = 0.10
+SURGE_TOL = 0.10
+
+_SUFFIX = {"t": 1e12, "g": 1e9, "meg": 1e6, "k": 1e3, "mil": 25.4e-6, "m": 1e-3, "u": 1e-6,
+           "n": 1e-9, "p": 1e-12, "f": 1e-15}
+
+
+def spice_number(text: str) -> float:
+    """A SPICE number with its suffix (Berkeley SPICE3 user's manual: letters after the
+    suffix are ignored; M is milli, MEG mega)."""
+    m = re.match(r"^([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)([a-zA-Z]*)", text.strip())
+    if m is None:
+        raise ValueError(text)
+    value, tail = float(m.group(1)), m.group(2).lower()
+    for s in ("meg", "mil", "t", "g", "k", "m", "u", "n", "p", "f"):
+        if tail.startswith(s):
+            return value * _SUFFIX[s]
+    return value
+
+
+def _cards(text: str) -> list[str]:
+    """Netlist lines with '+' continuations joined and ';' comments cut (title kept)."""
+    out: list[str] = []
+    for raw in text.splitlines():
+        line = raw.split(";", 1)[0].rstrip() if out else raw
+        if line.lstrip().startswith("+") and out:
+            out[-1] += " " + line.lstrip()[1:]
+        else:
+            out.append(line)
+    return out
+
+
+def _load(path: Path):
+    """drc's analysis of a netlist with its STEM.toml (the pipeline up to the rules)."""
+    from types import SimpleNamespace
+
+    from drc.analysis import analyse
+    from drc.context import load_context
+    from drc.expand import expand
+    context = load_context(path, None)
+    return SimpleNamespace(design=analyse(expand(str(path)), context))
+
+
+def _config(path: Path) -> dict:
+    toml = path.with_suffix(".toml")
+    return tomllib.loads(toml.read_text()) if toml.exists() else {}
+
+
+def corner_deck(path: Path, design, i: int, led: str) -> str:
+    """The netlist at corner `i` for ngspice, LED current sensed by a 0 V source."""
+    config = _config(path)
+    corners = design.corners
+    pins_by_source = {}
+    for label, spec in config.get("pin", {}).items():
+        ohm = spec.get("output_resistance")
+        pins_by_source[spec["source"].lower()] = (
+            spec.get("supply"), spice_number(ohm.split()[0]) if ohm else BUILTIN_PIN_OHM)
+    rails = {spec.get("source", label).lower(): label for label, spec in config.get("supply", {}).items()}
+    rail_nets = {"0"}
+    lines = []
+    cards = _cards(path.read_text())
+    for k, card in enumerate(cards):
+        words = card.split()
+        if k == 0 or not words or words[0].startswith("*"):
+            lines.append(card if k else "* " + card)
+            continue
+        name = words[0].lower()
+        if name.startswith(".include"):
+            # inlined, with junction capacitance set to zero: drc's model leaves it out
+            # (pumpmodel's docstring), and with `uic` ngspice starts every junction
+            # capacitance empty, which adds a ~1 ns spike (CJO 10 pF through ~80 ohm) to
+            # the surge that no pin rating concerns
+            library = (path.parent / words[1]).read_text()
+            lines.append(re.sub(r"(?i)\bCJO\s*=\s*[^\s)]+", "CJO=0", library))
+        elif name in (".op", ".end"):
+            continue
+        elif name in rails:
+            v = float(corners.supply_V[rails[name]][i])
+            lines.append(f"{words[0]} {words[1]} {words[2]} DC {v!r}")
+            rail_nets.add(words[1].lower())
+        elif name in pins_by_source and "pulse" in card.lower():
+            supply, ohm = pins_by_source[name]
+            v = float(corners.supply_V[supply][i])
+            args = re.search(r"(?i)pulse\s*\((.*)\)", card).group(1).split()
+            args[:2] = ["0", repr(v)] if spice_number(args[1]) >= spice_number(args[0]) else [repr(v), "0"]
+            lines.append(f"{words[0]} {words[1]}_drv {words[2]} PULSE({' '.join(args)})")
+            lines.append(f"R{words[0]}_out {words[1]}_drv {words[1]} {ohm!r}")
+        elif name.startswith("r"):
+            lines.append(f"{words[0]} {words[1]} {words[2]} "
+                         f"{spice_number(words[3]) * float(corners.resistor_factor[i])!r}")
+        elif name.startswith("c"):
+            if {words[1].lower(), words[2].lower()} <= rail_nets:
+                continue        # a bypass capacitor across an ideal source changes nothing
+            lines.append(f"{words[0]} {words[1]} {words[2]} "
+                         f"{spice_number(words[3]) * float(corners.capacitor_factor[i])!r} IC=0")
+        elif name == led.lower():
+            lines.append(f"{words[0]} {words[1]} led_sense {' '.join(words[3:])}")
+            lines.append(f"Vsense led_sense {words[2]} DC 0")
+        else:
+            lines.append(card)
+    return "\n".join(lines) + "\n.end\n"
+
+
+def ngspice_figures(deck: str, temperature_C: float, period_s: float, periods: int,
+                    output: str, pin_sources: list[str], points: int = 200) -> dict:
+    """Steady figures over the last period, surge over the first three (as drc defines it:
+    the greatest |pin current| in the first three periods from rest)."""
+    vectors = [f"v({output})", "i(Vsense)"] + [f"i({s})" for s in pin_sources]
+    w = tran(deck, period_s / points, periods * period_s, vectors, uic=True,
+             temperature_C=temperature_C, max_step_s=period_s / points)
+    t = w["time"]
+
+    def mean(x, k):
+        sel = (t >= (periods - k - 1) * period_s - 1e-12) & (t <= (periods - k) * period_s + 1e-12)
+        return np.trapezoid(x[sel], t[sel]) / (t[sel][-1] - t[sel][0])
+
+    last = t >= (periods - 1) * period_s - 1e-12
+    return {"peak_V": float(w[f"v({output})"][last].max()),
+            "led_A": float(mean(w["i(Vsense)"], 0)),
+            "led_before_A": float(mean(w["i(Vsense)"], 1)),
+            "surge_A": {s: float(np.abs(w[f"i({s})"][t <= 3 * period_s + 1e-12]).max())
+                        for s in pin_sources}}
+
+
+# (netlist, the pump whose output we read)
+CASES = [
+    (SAMPLES / "pump_sensor_1v8.cir"),
+    (SAMPLES / "pump_pin_charged.cir"),
+    (PUMPS / "doubler_rail.cir"),
+    (PUMPS / "doubler_rail_res.cir"),
+    (PUMPS / "doubler_pin.cir"),
+    (PUMPS / "dickson2.cir"),
+    (PUMPS / "dickson3.cir"),
+]
+
+
+def _compare(path: Path) -> list[dict]:
+    fr = _load(path)
+    design = fr.design
+    pump = design.pumps[0]
+    r = pump.result
+    assert r is not None, f"{path.name}: drc did not solve its pump"
+    led = pump.region.leds[0].name
+    corners = design.corners
+    load = r.load_average_A
+    picks = {"nominal": corners.nominal, "low": int(np.argmin(load)), "high": int(np.argmax(load))}
+    rows = []
+    for tag, i in picks.items():
+        deck = corner_deck(path, design, i, led)
+        periods = int(min(max(2 * float(r.cycles_to_settle[i]), 30), 160))
+        sources = [design.pins[p].source for p in pump.pins]
+        ref = ngspice_figures(deck, float(corners.temperature_C[i]), r.period_s, periods,
+                              pump.output_net, sources)
+        rows.append({"case": path.stem, "corner": tag, "index": i, "where": corners.words(i),
+                     "drc_peak_V": float(r.peak_V[i]), "drc_led_A": float(load[i]),
+                     "drc_surge_A": {design.pins[p].source: float(r.startup_surge_A[p][i]) for p in pump.pins},
+                     **ref})
+    return rows
+
+
+@pytest.fixture(scope="module")
+def comparisons():
+    require_ngspice()
+    with ThreadPoolExecutor(max_workers=4) as pool:
+        return [row for rows in pool.map(_compare, CASES) for row in rows]
+
+
+def _deviation(a, b):
+    return abs(a - b) / abs(b)
+
+
+def test_reference_run_is_settled(comparisons):
+    """The ngspice run is long enough: its last two periods' LED averages agree to 1 %."""
+    for row in comparisons:
+        assert _deviation(row["led_A"], row["led_before_A"]) < 0.01, row
+
+
+def test_peak_voltage_against_ngspice(comparisons):
+    """pumps[].peak_V within 5 % of ngspice's greatest output voltage over a steady period."""
+    worst = max(comparisons, key=lambda r: _deviation(r["drc_peak_V"], r["peak_V"]))
+    for row in comparisons:
+        assert _deviation(row["drc_peak_V"], row["peak_V"]) < PEAK_TOL, row
+    print("largest peak deviation", _deviation(worst["drc_peak_V"], worst["peak_V"]), worst["case"], worst["corner"])
+
+
+def test_led_average_current_against_ngspice(comparisons):
+    """The LED's average current over a steady period within 10 % of ngspice's."""
+    for row in comparisons:
+        assert _deviation(row["drc_led_A"], row["led_A"]) < CURRENT_TOL, row
+
+
+# A pin whose PULSE high phase (delay + rise + width + fall) runs past the end of its period
+# (here by 15 ns: the width is exactly half a period and the edges are 10 ns) must still be
+# low at the start: a PULSE source holds its first level until its delay (SPICE3 manual,
+# PULSE), and ngspice's start-up has it low. These cases once failed; they stay as checks.
+WRAPPED_HIGH_PHASE = {"pump_pin_charged", "doubler_pin"}
+
+
+@pytest.mark.parametrize("case", [p.stem for p in CASES])
+def test_startup_surge_against_ngspice(comparisons, case):
+    """Each lifting pin's start-up surge (greatest |current|, first three periods from rest)
+    within 10 % of ngspice's with every capacitor empty (uic, IC=0)."""
+    rows = [r for r in comparisons if r["case"] == case]
+    assert len(rows) == 3
+    for row in rows:
+        for source, surge in row["drc_surge_A"].items():
+            assert _deviation(surge, row["surge_A"][source]) < SURGE_TOL, (source, row)
+
+
+def test_corners_differ(comparisons):
+    """The three corners compared per circuit are really different operating points."""
+    for case in {r["case"] for r in comparisons}:
+        rows = [r for r in comparisons if r["case"] == case]
+        assert len({r["index"] for r in rows}) == 3, rows
+        currents = sorted(r["led_A"] for r in rows)
+        assert currents[0] < currents[-1] * 0.95, rows
+
+
+def test_print_deviation_table(comparisons, capsys):
+    """Not a check: the largest deviation per quantity and corner, for the record."""
+    table = {}
+    for row in comparisons:
+        for q, d in (("peak_V", _deviation(row["drc_peak_V"], row["peak_V"])),
+                     ("led_A", _deviation(row["drc_led_A"], row["led_A"])),
+                     ("surge_A" + ("(wrapped phase)" if row["case"] in WRAPPED_HIGH_PHASE else ""),
+                      max(_deviation(v, row["surge_A"][s]) for s, v in row["drc_surge_A"].items()))):
+            key = (q, row["corner"])
+            if d > table.get(key, (0.0, ""))[0]:
+                table[key] = (d, row["case"])
+    with capsys.disabled():
+        for (q, c), (d, case) in sorted(table.items()):
+            print(f"\n  {q:8s} {c:8s} {100 * d:6.2f} %  ({case})", end="")
+        print()
+    assert table
+
+
+# ---------------------------------------------------------------------------------------
+# topology recognition, through the command line's JSON (the contract's report shape)
+
+
+def _report(path: Path) -> dict:
+    """The report's "pumps" and "branches" entries as the engine writes them (through
+    JSON, so the shapes are what `--format json` prints); rules are not needed here."""
+    from drc.engine import _branch_json, _pump_json
+    design = _load(path).design
+    report = {"pumps": [_pump_json(p, design) for p in design.pumps],
+              "branches": [e for b in design.branches for e in _branch_json(b, design)]}
+    return json.loads(json.dumps(report, default=float))
+
+
+@pytest.fixture(scope="module")
+def reports():
+    names = ["doubler_rail", "doubler_rail_res", "doubler_pin", "dickson2", "dickson3",
+             "dickson4", "bootstrap"]
+    with ThreadPoolExecutor(max_workers=4) as pool:
+        return dict(zip(names, pool.map(lambda n: _report(PUMPS / f"{n}.cir"), names)))
+
+
+# (netlist, topology, stages, elements in ladder order, output net) - the contract's definitions:
+# a doubler is one pumping capacitor, a charge diode and a transfer diode; a dickson ladder has
+# `stages` pumping capacitors on two opposite phases (Dickson 1976).
+TOPOLOGIES = [
+    ("doubler_rail", "doubler", 1, ["DCH", "CP", "DTR"], "out"),
+    ("doubler_rail_res", "doubler", 1, ["DCH", "CP", "DTR", "CR"], "out"),
+    ("doubler_pin", "doubler", 1, ["DCH", "CP", "DTR", "CR"], "out"),
+    ("dickson2", "dickson", 2, ["D1", "C1", "D2", "C2", "D3", "CR"], "out"),
+    ("dickson3", "dickson", 3, ["D1", "C1", "D2", "C2", "D3", "C3", "D4", "CR"], "out"),
+    ("dickson4", "dickson", 4, ["D1", "C1", "D2", "C2", "D3", "C3", "D4", "C4", "D5", "CR"], "out"),
+]
+
+
+@pytest.mark.parametrize("name,topology,stages,elements,output", TOPOLOGIES)
+def test_topology(reports, name, topology, stages, elements, output):
+    report = reports[name]
+    assert len(report["pumps"]) == 1
+    pump = report["pumps"][0]
+    assert (pump["topology"], pump["stages"], pump["output_net"]) == (topology, stages, output)
+    assert pump["elements"] == elements
+    assert pump["id"] == elements[1]
+    for key in ("peak_V", "average_V"):
+        v = pump[key]
+        assert set(v) == {"low", "nominal", "high"}
+        assert v["low"] <= v["nominal"] <= v["high"]
+    # peak at least the average, at the nominal corner
+    assert pump["peak_V"]["nominal"] >= pump["average_V"]["nominal"]
+    [branch] = report["branches"]
+    assert branch["drive"] == "pump" and branch["source"] == pump["id"]
+
+
+def test_doubler_charged_from_a_pin_lists_both_pins(reports):
+    assert set(reports["doubler_pin"]["pumps"][0]["pins"]) == {"PA", "PB"}
+    assert reports["doubler_rail"]["pumps"][0]["pins"] == ["CK"]
+
+
+def test_dickson_output_grows_with_stages(reports):
+    """Dickson (IEEE JSSC 11(3), 1976): each stage adds about Vphi - Vd, here 1.2 - 0.3 V; our
+    ladders have heavier loads as they grow, so only the rise of the peak is checked (> 0.3 V
+    per stage, well under the ideal 0.9 V)."""
+    peaks = [reports[f"dickson{n}"]["pumps"][0]["peak_V"]["nominal"] for n in (2, 3, 4)]
+    assert peaks[1] - peaks[0] > 0.3 and peaks[2] - peaks[1] > 0.3
+
+
+def test_bootstrap_recognised(reports):
+    pump = reports["bootstrap"]["pumps"][0]
+    assert pump["topology"] == "bootstrap" and pump["stages"] == 1 and pump["id"] == "CB"
+    assert reports["bootstrap"]["branches"][0]["drive"] == "pump"
+
+
+def test_bootstrap_output_is_the_lifted_node(reports):
+    pump = reports["bootstrap"]["pumps"][0]
+    assert pump["output_net"] == "x"
+    assert "DL" not in pump["elements"]
+    # the lifted node rises above the 2.0 V rail when the pin goes high
+    assert pump["peak_V"]["nominal"] > 2.0
+
+
+# ---------------------------------------------------------------------------------------
+# facts of the trade (common practice, no citable source; loose tolerances)
+
+
+def test_two_pin_schottky_pump_on_1v8():
+    """Common practice: a two-pin Schottky pump on 1.8 V charges its capacitor to about
+    1.5 V (1.8 V less a ~0.3 V Schottky), feeds the LED roughly 2.8 V on average, and the
+    lifted node peaks at 3.1 to 3.2 V. Tolerances: +-0.15 V, +-0.25 V, 3.0..3.3 V."""
+    design = _load(PUMPS / "twin_doubler_1v8.cir").design
+    i = design.corners.nominal
+    assert len(design.pumps) == 2 and {p.topology for p in design.pumps} == {"doubler"}
+    r = design.pumps[0].result
+    row = r.corner_index[i]
+    charged = (r.waveform_V["xa"][row] - r.waveform_V["pa"][row]).max()
+    assert abs(charged - 1.5) < 0.15
+    assert abs(float(r.average_V[i]) - 2.8) < 0.25
+    assert 3.0 <= r.waveform_V["xa"][row].max() <= 3.3
