@@ -33,7 +33,14 @@ def _parser() -> argparse.ArgumentParser:
     check.add_argument("--rules", action="append", default=[], metavar="DIR",
                        help="a folder of house rules (repeatable)")
     check.add_argument("--jobs", type=int, default=1, metavar="N")
-    check.add_argument("--quiet", "-q", action="store_true", help="only the findings' first lines and the summary")
+    check.add_argument("--quiet", "-q", action="store_true",
+                       help="text: only the failing findings' first lines and the summary")
+    check.add_argument("--waivers", action="append", default=[], metavar="FILE",
+                       help="a TOML file of [[waiver]] tables (repeatable)")
+    check.add_argument("--baseline", metavar="FILE",
+                       help="findings in this baseline are reported as known and do not fail")
+    check.add_argument("--write-baseline", metavar="FILE",
+                       help="write this run's findings as a baseline (atomically)")
     rules = sub.add_parser("rules", help="list every rule")
     rules.add_argument("--format", default="text", choices=("text", "json"))
     rules.add_argument("--rules", action="append", default=[], metavar="DIR")
@@ -71,14 +78,35 @@ def main(argv: list[str] | None = None) -> int:
 
 
 def _check(args) -> int:
-    from drc.engine import run_check
+    import os
+    from drc.baseline import render_baseline
+    from drc.engine import rule_metadata, run_check
+    from drc.errors import location_of_path
     from drc.report import render
+    from drc.report.jsonreport import is_failing, prepare
     from drc.report.output import should_color, write_atomic
-    from drc.engine import rule_metadata
     if args.jobs < 1:
         raise InputError(None, "--jobs wants a whole number of at least 1")
+    for target in (args.output, args.write_baseline):     # fail before a long run, not after
+        if target:
+            folder = os.path.dirname(os.path.abspath(target))
+            if not os.path.isdir(folder):
+                raise InputError(location_of_path(target),
+                                 f"cannot write {target}: folder {folder} does not exist")
+            if os.path.isdir(target):
+                raise InputError(location_of_path(target), f"cannot write {target}: it is a folder")
+    collecting = gc.isenabled()
     gc.disable()      # hundreds of thousands of small objects, none of them cyclic garbage
-    report, sources, rules = run_check(args.paths, args.config, args.rules)
+    progress = _Progress(sys.stderr)
+    try:
+        report, sources, rules = run_check(args.paths, args.config, args.rules, jobs=args.jobs,
+                                           waiver_files=args.waivers, baseline=args.baseline,
+                                           progress=progress)
+    finally:
+        progress.clear()
+        if collecting:
+            gc.enable()
+    report = prepare(report)
     color = args.output is None and args.format == "text" and should_color(sys.stdout)
     text = render(report, args.format, sources=sources, rules=rule_metadata(rules),
                   color=color, quiet=args.quiet, fail_on=args.fail_on)
@@ -86,42 +114,85 @@ def _check(args) -> int:
         write_atomic(args.output, text)
     else:
         sys.stdout.write(text)
-    return EXIT_FINDINGS if _fails(report, args.fail_on) else EXIT_CLEAN
+    if args.write_baseline:
+        write_atomic(args.write_baseline, render_baseline(report))
+    failing = args.fail_on != "never" and any(is_failing(f, args.fail_on) for f in report["findings"])
+    return EXIT_FINDINGS if failing else EXIT_CLEAN
 
 
-def _fails(report: dict, fail_on: str) -> bool:
-    if fail_on == "never":
-        return False
-    order = {"error": 0, "warning": 1, "note": 2}
-    return any(order[f["severity"]] <= order[fail_on] for f in report["findings"]
-               if not f.get("waiver"))
+class _Progress:
+    """'checked 12/40 files', rewritten in place on a terminal's stderr; nothing otherwise."""
+
+    def __init__(self, stream):
+        self.stream = stream
+        self.shown = 0
+        isatty = getattr(stream, "isatty", None)
+        try:
+            self.on = bool(isatty and isatty())
+        except (ValueError, OSError):
+            self.on = False
+
+    def __call__(self, done: int, total: int) -> None:
+        if not self.on or total < 2:
+            return
+        text = f"checked {done}/{total} files"
+        self.stream.write("\r" + text.ljust(self.shown))
+        self.stream.flush()
+        self.shown = len(text)
+
+    def clear(self) -> None:
+        if self.on and self.shown:
+            self.stream.write("\r" + " " * self.shown + "\r")
+            self.stream.flush()
+            self.shown = 0
+
+
+def _rule_list(folders):
+    from pathlib import Path
+    from drc.engine import rule_metadata
+    from drc.registry import load_rules
+    rules, _ = load_rules([Path(f) for f in folders])
+    return rule_metadata(rules)
 
 
 def _rules(args) -> int:
-    from drc.registry import load_rules
-    from pathlib import Path
-    rules, _ = load_rules([Path(f) for f in args.rules])
+    rules = _rule_list(args.rules)
     if args.format == "json":
-        sys.stdout.write(json.dumps([{"id": r.id, "severity": r.rule.severity, "summary": r.rule.summary,
-                                      "origin": r.origin} for r in rules], indent=2) + "\n")
+        sys.stdout.write(json.dumps([{"id": r["id"], "severity": r["severity"],
+                                      "summary": r["summary"], "origin": r["origin"]}
+                                     for r in rules], indent=2) + "\n")
         return EXIT_CLEAN
-    width = max(len(r.id) for r in rules)
-    for r in rules:
-        sys.stdout.write(f"{r.id:<{width}}  {r.rule.severity:<7}  {r.rule.summary}  [{r.origin}]\n")
+    headers = ("rule", "severity", "from", "what it finds")
+    rows = [(r["id"], r["severity"], r["origin"], r["summary"]) for r in rules]
+    widths = [max(len(row[i]) for row in (headers, *rows)) for i in range(3)]
+    for row in (headers, *rows):
+        sys.stdout.write("  ".join(cell.ljust(w) for cell, w in zip(row, widths))
+                         + "  " + row[3] + "\n")
     return EXIT_CLEAN
 
 
 def _explain(args) -> int:
-    from drc.engine import closest_rule
-    from drc.registry import load_rules
-    from pathlib import Path
-    rules, _ = load_rules([Path(f) for f in args.rules])
-    match = [r for r in rules if r.id == args.rule.lower()]
+    import difflib
+    from drc.waivers import HOW_TO_WAIVE
+    rules = _rule_list(args.rules)
+    match = [r for r in rules if r["id"] == args.rule.lower()]
     if not match:
-        raise InputError(None, f"unknown rule '{args.rule}'{closest_rule(args.rule, rules)} "
-                         "(drc rules lists them)")
+        close = difflib.get_close_matches(args.rule.lower(), [r["id"] for r in rules], n=1)
+        hint = f"; did you mean '{close[0]}'?" if close else ""
+        raise InputError(None, f"unknown rule '{args.rule}'{hint} (drc rules lists them)")
     r = match[0]
-    sys.stdout.write(f"{r.id} ({r.rule.severity}, {r.origin})\n{r.rule.summary}\n\n{r.help}\n")
-    if r.rule.sources:
-        sys.stdout.write("\nSources:\n" + "".join(f"  - {s}\n" for s in r.rule.sources))
+    import re
+    import textwrap
+    paragraphs = []
+    for paragraph in re.split(r"\n\s*\n", r["help"].strip()):
+        if max(len(line) for line in paragraph.splitlines()) > 100:   # unwrapped prose
+            paragraph = "\n".join(textwrap.wrap(" ".join(paragraph.split()), 90,
+                                                 break_long_words=False, break_on_hyphens=False))
+        paragraphs.append(paragraph)
+    out = [f"{r['id']} ({r['severity']}, {r['origin']})", r["summary"], "", "\n\n".join(paragraphs)]
+    if r["sources"] and "Sources:" not in r["help"]:
+        out += ["", "Sources:"] + [f"  - {s}" for s in r["sources"]]
+    if r["id"] != "waiver-unused":
+        out += ["", HOW_TO_WAIVE]
+    sys.stdout.write("\n".join(out) + "\n")
     return EXIT_CLEAN

@@ -63,12 +63,13 @@ class FileResult:
     pumps: list[dict]
     sources: dict[str, list[str]]
     rules_ran: list[str] = field(default_factory=list)
+    anchors: list[set] = field(default_factory=list)   # per finding: (path, line) cards
 
 
 def check_file(path: str, config: str | None, rules: list[LoadedRule], extra_folders=()) -> FileResult:
     """Everything about one netlist; InputError(s) when it cannot be read."""
     rule_ids = [r.id for r in rules]
-    context = load_context(Path(path), Path(config) if config else None, rule_ids=rule_ids)
+    context = load_context(Path(path), Path(config) if config else None, rule_ids=None)
     limits = Limits(max_elements=context.limits.max_elements,
                     max_file_bytes=context.limits.max_file_bytes,
                     include_folders=tuple(context.limits.include_folders))
@@ -153,23 +154,48 @@ def _cautions(design: Design, findings: list[Finding]) -> list[str]:
     return out
 
 
-def run_check(paths: list[str], config: str | None, rule_folders: list[str]) -> tuple[dict, dict, list[LoadedRule]]:
-    """The report dict (the contract's shape), the sources for quoting, and the rules."""
+def run_check(paths: list[str], config: str | None, rule_folders: list[str], *, jobs: int = 1,
+              waiver_files: list[str] = (), baseline: str | None = None, progress=None,
+              today=None) -> tuple[dict, dict, list[LoadedRule]]:
+    """The report dict (the contract's shape), the sources for quoting, and the rules.
+
+    jobs > 1 checks the files in a process pool; the report is the same whatever jobs.
+    waiver_files are TOML waiver files; baseline a file written by --write-baseline.
+    progress(done, total) is called as files finish. Every input problem (netlists,
+    waivers, baseline) raises InputErrors before anything is written.
+    """
+    import datetime as _dt
+    from drc import waivers as _waivers
+    from drc.baseline import apply_baseline, load_baseline
+    from drc.report.jsonreport import fingerprint
+
     files = find_netlists(paths)
     rules, failures = load_rules([Path(f) for f in rule_folders])
+    known_rules = {r.id for r in rules} | {_waivers.HOUSE_FAILED_RULE}
     errors: list[InputError] = []
-    results: list[FileResult] = []
-    for path in files:
+    # the waiver files and the baseline first: a mistake there is found before a long run
+    file_waivers = []
+    for wf in waiver_files:
         try:
-            results.append(check_file(path, config, rules))
+            file_waivers.extend(_waivers.file_waivers(wf, known_rules))
         except InputErrors as many:
             errors.extend(many.errors)
         except InputError as one:
             errors.append(one)
-    if errors:
-        raise InputErrors(errors)
+    known = None
+    if baseline is not None:
+        try:
+            known = load_baseline(baseline)
+        except InputError as one:
+            errors.append(one)
+    results: list[FileResult] = []
+    for outcome in _check_all(files, config, rule_folders, rules, jobs, progress):
+        if isinstance(outcome, FileResult):
+            results.append(outcome)
+        else:
+            errors.extend(outcome)
     multiple = len(results) > 1
-    findings, assumptions, cautions, branches, pumps, inputs = [], [], [], [], [], []
+    findings, anchors, assumptions, cautions, branches, pumps, inputs = [], [], [], [], [], [], []
     sources: dict[str, list[str]] = {}
     for r in results:
         inputs.append(r.inputs)
@@ -186,21 +212,107 @@ def run_check(paths: list[str], config: str | None, rule_folders: list[str]) -> 
                     entry = {"path": r.path, **entry}
                 branches.append(entry)
         pumps.extend(r.pumps)
-        findings.extend(_finding_json(f) for f in r.findings)
+        findings.extend(r.findings)
+        anchors.extend(r.anchors)
         sources.update(r.sources)
+    try:
+        inline = _waivers.inline_waivers(sources, known_rules, {r.path for r in results})
+    except InputErrors as many:
+        errors.extend(many.errors)
+        inline = []
+    if errors:
+        raise InputErrors(errors)
     for failure in failures:
-        findings.append({"rule": "house-rule-failed", "severity": "error",
+        findings.append({"rule": _waivers.HOUSE_FAILED_RULE, "severity": "error",
                          "message": f"house rule {failure.path} could not be loaded: {failure.message}",
                          "location": {"path": failure.path, "line": failure.line, "column": 1},
                          "elements": [], "nets": [], "corner": None, "values": {},
                          "fix": "fix the rule module; the other rules ran", "caution": ""})
+        anchors.append({(failure.path, failure.line)})
+    findings.extend(_waivers.apply_waivers(findings, anchors, inline + file_waivers,
+                                           today or _dt.date.today()))
     findings.sort(key=lambda f: (f["location"]["path"], f["location"]["line"],
                                  f["location"]["column"], f["rule"], f["message"]))
+    for f in findings:
+        f["fingerprint"] = fingerprint(f)
+    if known is not None:
+        apply_baseline(findings, known)
     summary = {s: sum(1 for f in findings if f["severity"] == s) for s in SEVERITIES}
     report = {"schema": "drc-report/1", "tool": {"name": "drc", "version": __version__},
               "inputs": inputs, "assumptions": assumptions, "findings": findings,
               "branches": branches, "pumps": pumps, "cautions": cautions, "summary": summary}
     return report, sources, rules
+
+
+def _slim(result: FileResult) -> FileResult:
+    """What the report needs from one file, as plain picklable data: findings as JSON dicts,
+    each with the cards it can be waived at, and no Design."""
+    design = result.design
+    by_key = design.flat.by_key if design is not None else {}
+    anchors = []
+    for f in result.findings:
+        where = {(f.location.path, f.location.line)}
+        named = [e for e in (by_key.get(n.lower()) for n in f.elements) if e is not None]
+        # the element whose card the finding points at, and the X lines it came through
+        at = [e for e in named if e.location == f.location] or named[:1]
+        for e in at:
+            where.update((i.path, i.line) for i in e.instances)
+        anchors.append(where)
+    slim = FileResult(result.path, None, [_finding_json(f) for f in result.findings],
+                      result.inputs, list(result.assumptions), result.cautions, result.branches,
+                      result.pumps, result.sources, result.rules_ran)
+    slim.anchors = anchors
+    return slim
+
+
+def _errors_as_data(error: Exception) -> list[tuple]:
+    many = error.errors if isinstance(error, InputErrors) else [error]
+    return [(tuple(e.location) if e.location is not None else None, e.message) for e in many]
+
+
+_WORKER_RULES: dict = {}
+
+
+def _check_in_worker(path: str, config: str | None, rule_folders: tuple[str, ...]):
+    """One file in a pool process: ("ok", slim result) or ("errors", [(location, message)])."""
+    rules = _WORKER_RULES.get(rule_folders)
+    if rules is None:
+        rules = _WORKER_RULES[rule_folders] = load_rules([Path(f) for f in rule_folders])[0]
+    try:
+        return "ok", _slim(check_file(path, config, rules))
+    except (InputError, InputErrors) as error:
+        return "errors", _errors_as_data(error)
+
+
+def _check_all(files, config, rule_folders, rules, jobs, progress):
+    """A FileResult, or a list of InputErrors, per file, in the order of files."""
+    total = len(files)
+    if jobs <= 1 or total <= 1:
+        for n, path in enumerate(files, 1):
+            try:
+                yield _slim(check_file(path, config, rules))
+            except (InputError, InputErrors) as error:
+                yield error.errors if isinstance(error, InputErrors) else [error]
+            if progress:
+                progress(n, total)
+        return
+    import multiprocessing
+    from concurrent.futures import ProcessPoolExecutor, as_completed
+    method = "fork" if "fork" in multiprocessing.get_all_start_methods() else None
+    context = multiprocessing.get_context(method) if method else None
+    outcomes: list = [None] * total
+    with ProcessPoolExecutor(max_workers=min(jobs, total), mp_context=context) as pool:
+        futures = {pool.submit(_check_in_worker, path, config, tuple(rule_folders)): i
+                   for i, path in enumerate(files)}
+        for done, future in enumerate(as_completed(futures), 1):
+            outcomes[futures[future]] = future.result()
+            if progress:
+                progress(done, total)
+    for kind, value in outcomes:
+        if kind == "ok":
+            yield value
+        else:
+            yield [InputError(Location(*loc) if loc else None, message) for loc, message in value]
 
 
 def _finding_json(f: Finding) -> dict:
@@ -213,8 +325,30 @@ def _finding_json(f: Finding) -> dict:
 
 
 def rule_metadata(rules: list[LoadedRule]) -> list[dict]:
-    return [{"id": r.id, "severity": r.rule.severity, "summary": r.rule.summary, "help": r.help,
-             "sources": list(r.rule.sources), "origin": r.origin} for r in rules]
+    """Every rule that can report: the loaded ones, then the engine's own two."""
+    from drc import waivers as _waivers
+    out = [{"id": r.id, "severity": r.rule.severity, "summary": r.rule.summary, "help": r.help,
+            "sources": list(r.rule.sources), "origin": r.origin} for r in rules]
+    ids = {r["id"] for r in out}
+    for rule_id, summary, help_text in (
+            (_waivers.HOUSE_FAILED_RULE, _waivers.HOUSE_FAILED_SUMMARY, HOUSE_FAILED_HELP),
+            (_waivers.UNUSED_RULE, _waivers.UNUSED_SUMMARY, _waivers.UNUSED_HELP)):
+        if rule_id not in ids:
+            out.append({"id": rule_id, "severity": "error" if rule_id == _waivers.HOUSE_FAILED_RULE
+                        else "note", "summary": summary, "help": help_text, "sources": [],
+                        "origin": "built-in"})
+    return out
+
+
+HOUSE_FAILED_HELP = (
+    "What it finds: a house rule (from --rules DIR or an installed pack) that could not be "
+    "loaded, raised an exception, or ran past its time limit.\n\n"
+    "Why it matters: a check the team relies on did not run, so a clean report would say "
+    "less than it seems to. The other rules still ran.\n\n"
+    "How it is computed: each house rule module is imported and its check run under a time "
+    "limit; a failure becomes this finding at the module's file.\n\n"
+    "Example: a house rule module with a syntax error, reported at its line.\n\n"
+    "Fix: fix the rule module (its message says what went wrong).")
 
 
 def closest_rule(name: str, rules: list[LoadedRule]) -> str:

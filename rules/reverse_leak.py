@@ -23,13 +23,15 @@ most); SPICE2 diode temperature law (Nagel, 1975).
 
 import numpy as np
 
-from drc.api import Rule, corner, finding, format_quantity, worst_high
+from drc.api import (Rule, Setting, corner, diode_params_of, finding, format_quantity,
+                     forward_voltage, saturation_current_at, worst_high)
 
 RULE = Rule(id="reverse-leak", severity="warning",
             summary="a path that lets charge flow back: into a pin's clamp, onto a rail, or a missing or leaky blocking diode",
             sources=("common practice: clamp diodes conduct above the supply + 0.3 V, about 5 mA at most",
                      "SPICE2 diode temperature law (Nagel, UCB/ERL M520, 1975)"),
-            settings={"leak_share": 0.1})
+            settings={"leak_share": Setting(0.1, unit="%", help="the share of the LED's average "
+                                            "current a blocking Schottky may leak at the hot corner")})
 
 
 def check(design, settings):
@@ -112,8 +114,6 @@ def _clamp_paths(design, pump, region, result, pumped_nets):
 
 
 def _leaky_schottky(design, pump, region, result, share_limit):
-    from drc.api import schottky_params  # noqa: F401  (the same law as the model)
-    from drc.diode import saturation_current, voltage_at_current
     led = region.leds[0]
     load = result.load_average_A
     hot = worst_high(design.corners.temperature_C)
@@ -122,11 +122,10 @@ def _leaky_schottky(design, pump, region, result, share_limit):
     for d in [pump.charge_diode] + list(pump.transfer_diodes):
         if d is None:
             continue
-        from drc.analysis import diode_params
-        params = diode_params(design.flat, d)
-        if float(voltage_at_current(params, 1e-3, t_nom)) >= 0.45:
+        params = diode_params_of(design, d)
+        if float(forward_voltage(params, 1e-3, t_nom)) >= 0.45:
             continue                       # not a Schottky
-        leak = float(saturation_current(params, t_hot))
+        leak = float(saturation_current_at(params, t_hot))
         reverse = result.diode_reverse_max_V.get(d.name)
         if reverse is None or float(np.max(reverse)) <= 0:
             continue

@@ -5,6 +5,7 @@ from __future__ import annotations
 import hashlib
 import json
 import math
+import posixpath
 from typing import Any
 
 SEVERITIES = ("error", "warning", "note")
@@ -18,13 +19,14 @@ _TOP_KEYS = ("schema", "tool", "inputs", "assumptions", "findings", "branches", 
 _TOOL_KEYS = ("name", "version")
 _INPUT_KEYS = ("path", "elements", "nets", "config")
 _FINDING_KEYS = ("rule", "severity", "message", "location", "elements", "nets", "corner",
-                 "values", "fix", "caution", "fingerprint", "waiver")
+                 "values", "fix", "caution", "fingerprint", "waiver", "waiver_expired",
+                 "baseline")
 _LOCATION_KEYS = ("path", "line", "column")
-_WAIVER_KEYS = ("reason", "source", "expires")
+_WAIVER_KEYS = ("reason", "source", "expires", "at")
 _BRANCH_KEYS = ("led", "drive", "source", "elements", "current_A", "forward_V")
 _PUMP_KEYS = ("id", "topology", "stages", "elements", "output_net", "peak_V", "average_V")
 _SPREAD_KEYS = ("low", "nominal", "high")
-_SUMMARY_KEYS = ("error", "warning", "note", "waived")
+_SUMMARY_KEYS = ("error", "warning", "note", "waived", "known")
 
 
 def fingerprint(finding: dict) -> str:
@@ -35,6 +37,8 @@ def fingerprint(finding: dict) -> str:
     """
     location = finding.get("location") or {}
     path = str(location.get("path", "")).replace("\\", "/")
+    if path:
+        path = posixpath.normpath(path)       # "./a/b.cir" and "a/b.cir" are one file
     key = [
         str(finding.get("rule", "")),
         path,
@@ -51,9 +55,14 @@ def is_waived(finding: dict) -> bool:
     return bool(finding.get("waiver"))
 
 
+def is_known(finding: dict) -> bool:
+    """True when a baseline holds the finding (reported, but it does not fail the run)."""
+    return finding.get("baseline") == "known"
+
+
 def is_failing(finding: dict, fail_on: str) -> bool:
-    """True when an unwaived finding is at or above the --fail-on threshold."""
-    if is_waived(finding):
+    """True when an unwaived finding, not in the baseline, is at or above --fail-on."""
+    if is_waived(finding) or is_known(finding):
         return False
     return SEVERITY_RANK.get(finding.get("severity"), 0) >= FAIL_ON_RANK[fail_on]
 
@@ -69,12 +78,17 @@ def check_fail_on(fail_on: str) -> str:
 
 
 def count_findings(findings: list[dict]) -> dict:
-    """Unwaived findings per severity, and the waived ones apart."""
+    """Unwaived findings per severity, and the waived ones apart; with a baseline, the known
+    ones apart too."""
     counts = {severity: 0 for severity in SEVERITIES}
     counts["waived"] = 0
+    if any("baseline" in finding for finding in findings):
+        counts["known"] = 0
     for finding in findings:
         if is_waived(finding):
             counts["waived"] += 1
+        elif is_known(finding):
+            counts["known"] += 1
         elif finding.get("severity") in counts:
             counts[finding["severity"]] += 1
     return counts
@@ -160,6 +174,7 @@ def _finding_children(key: str):
     return {
         "location": ("obj", _LOCATION_KEYS, None),
         "waiver": ("obj", _WAIVER_KEYS, None),
+        "waiver_expired": ("obj", _WAIVER_KEYS, None),
     }.get(key)
 
 

@@ -97,6 +97,9 @@ def _note(finding: dict) -> str:
         waiver = finding["waiver"]
         return (f"{_where(finding)}: {finding.get('severity')} waived "
                 f"({waiver.get('reason', '')}): {finding.get('message', '')}")
+    if finding.get("baseline") == "known":
+        return (f"{_where(finding)}: {finding.get('severity')} known (in the baseline): "
+                f"{finding.get('message', '')}")
     return (f"{_where(finding)}: {finding.get('severity')} below the threshold: "
             f"{finding.get('message', '')}")
 

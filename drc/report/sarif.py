@@ -138,8 +138,11 @@ def _result(finding: dict, index_of: dict[str, int]) -> dict:
             suppression["properties"] = {"expires": str(waiver["expires"])}
         result["suppressions"] = [suppression]
 
+    if finding.get("baseline") in ("known", "new"):
+        result["baselineState"] = "unchanged" if finding["baseline"] == "known" else "new"
+
     properties = {}
-    for key in ("elements", "nets", "corner", "values", "caution"):
+    for key in ("elements", "nets", "corner", "values", "caution", "waiver_expired"):
         if finding.get(key) is not None:
             properties[key] = plain(finding[key])
     if properties:

@@ -5,7 +5,8 @@ from __future__ import annotations
 
 import textwrap
 
-from drc.report.jsonreport import SEVERITIES, check_fail_on, is_failing, is_waived, prepare
+from drc.report.jsonreport import (SEVERITIES, check_fail_on, is_failing, is_known, is_waived,
+                                   prepare)
 from drc.units import format_si
 
 WIDTH = 100
@@ -40,7 +41,8 @@ def render_text(report: dict, sources: dict[str, list[str]] | None = None, *,
 
     for path, group in _by_file(report, findings):
         if quiet:
-            out.extend(_first_line(f, paint) for f in group if not is_waived(f))
+            out.extend(_first_line(f, paint) for f in group
+                       if not is_waived(f) and not is_known(f))
             continue
         out.append(paint("header", f"-- {path}: {_findings_phrase(group)} --"))
         for finding in group:
@@ -69,8 +71,13 @@ def summary_line(report: dict, fail_on: str = "error", paint=None) -> str:
     files = len(report.get("inputs") or ()) or len(
         {str((f.get("location") or {}).get("path", "")) for f in report["findings"]})
     line = f"{', '.join(parts)} in {_plural(files, 'file')}"
+    apart = []
     if counts.get("waived"):
-        line += f" ({counts['waived']} waived)"
+        apart.append(f"{counts['waived']} waived")
+    if counts.get("known"):
+        apart.append(f"{counts['known']} known from the baseline")
+    if apart:
+        line += f" ({', '.join(apart)})"
     failing = any(is_failing(f, fail_on) for f in report["findings"])
     if fail_on == "never":
         verdict = paint("pass", "passes") + " (--fail-on never)"
@@ -93,8 +100,10 @@ def _plural(count: int, word: str) -> str:
 
 def _findings_phrase(group: list[dict]) -> str:
     waived = sum(1 for f in group if is_waived(f))
-    phrase = _plural(len(group) - waived, "finding")
-    return phrase + (f", {waived} waived" if waived else "")
+    known = sum(1 for f in group if is_known(f))
+    phrase = _plural(len(group) - waived - known, "finding")
+    return (phrase + (f", {waived} waived" if waived else "")
+            + (f", {known} known" if known else ""))
 
 
 def _by_file(report: dict, findings: list[dict]):
@@ -121,6 +130,8 @@ def _first_line(finding: dict, paint) -> str:
     rule = paint("dim", f"[{finding.get('rule', '')}]")
     if is_waived(finding):
         label = paint("waived", f"{severity} (waived)")
+    elif is_known(finding):
+        label = paint("waived", f"{severity} (known)")
     else:
         label = paint(severity if severity in SEVERITIES else "dim", severity)
     return f"{path}:{line}:{column}: {label}: {finding.get('message', '')} {rule}"
@@ -143,7 +154,8 @@ def _quote(finding: dict, sources: dict[str, list[str]], paint) -> list[str]:
     # Keep the source's tabs in the pad so the marker lines up however tabs are shown.
     pad = "".join(ch if ch == "\t" else " " for ch in text[:start])
     gutter = len(str(line))
-    severity = "waived" if is_waived(finding) else str(finding.get("severity", "dim"))
+    severity = ("waived" if is_waived(finding) or is_known(finding)
+                else str(finding.get("severity", "dim")))
     style = severity if severity in _STYLE else "dim"
     return [f"  {line:>{gutter}} | {text}",
             f"  {'':>{gutter}} | {pad}{paint(style, '^' * width)}"]
@@ -159,6 +171,13 @@ def _details(finding: dict) -> list[str]:
         where = "in the netlist" if waiver.get("source") == "inline" else "in the waiver file"
         until = f", until {waiver['expires']}" if waiver.get("expires") else ", no end date"
         out.extend(_wrapped("  waived: ", f"{waiver.get('reason', '')} ({where}{until})"))
+    expired = finding.get("waiver_expired")
+    if expired:
+        out.extend(_wrapped("  note: ", f"its waiver ran out on {expired.get('expires')} "
+                                        f"({expired.get('at', '')}: {expired.get('reason', '')}); "
+                                        "renew it with a new date, or fix the design"))
+    if is_known(finding):
+        out.append("  known: in the baseline, so it does not fail the run")
     return out
 
 
