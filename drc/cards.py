@@ -14,8 +14,17 @@ from drc.errors import InputError, Location
 
 
 class Word(NamedTuple):
+    """A word as typed, with where it was typed. The place is kept as plain fields (a board
+    has a million words, and most locations are never asked for); `location` makes one."""
+
     text: str
-    location: Location
+    path: str
+    line: int
+    column: int
+
+    @property
+    def location(self) -> Location:
+        return Location(self.path, self.line, self.column)
 
 
 class Expr(NamedTuple):

@@ -16,7 +16,6 @@ from pathlib import Path
 from drc.cards import Assign, Call, DotCard, ElementCard, Expr, Str, Word
 from drc.design import GROUND, Element, FlatDesign, Model, Source, ValueNote, Waveform
 from drc.errors import InputError, Location
-from drc.expressions import ExpressionError, evaluate
 from drc.reader import read_text
 from drc.values import parse_iec_code, parse_number, spice_reading_of_code
 
@@ -257,6 +256,8 @@ class _Expander:
         raise InputError(f.location, f"{what} wants a number or an expression")
 
     def _expression(self, text, where: Location, params, what, braced: bool) -> float:
+        # imported here: the expression grammar (and lark) only when a netlist has expressions
+        from drc.expressions import ExpressionError, evaluate
         try:
             return evaluate(text, params.lookup if params is not None else {})
         except ExpressionError as error:
@@ -383,7 +384,7 @@ def _count(scope: Scope, memo: dict, chain: list) -> int:
     """Elements a scope flattens to, counted from the definitions alone (black boxes count 1)."""
     total = 0
     for card in scope.elements:
-        if card.letter != "X":
+        if card.name.text[0] not in "Xx":
             total += 1
             continue
         sub = scope.find_subckt(card.fields[0].text.lower())
@@ -498,62 +499,83 @@ class _Flattener:
              params: Params, instances: tuple[Location, ...]) -> None:
         ex = self.ex
         append = self.elements.append
-        nets = self.nets
+        net = self.net
+        new = tuple.__new__
+        net_of: dict[str, str] = {}         # node as typed -> net key, in this scope instance
+        model_of: dict[str, str] = {}       # model name as typed -> model key, likewise
         for card in scope.elements:
-            letter = card.letter
-            name = shown_prefix + card.name.text
-            nodes = tuple(self.net(w, prefix, ports) for w in card.nodes)
-            nets.update(nodes)
+            head = card.name
+            letter = head.text[0].upper()
+            name = shown_prefix + head.text
+            nodes = []
+            for w in card.nodes:
+                key = net_of.get(w.text)
+                if key is None:
+                    key = net_of[w.text] = net(w, prefix, ports)
+                nodes.append(key)
+            nodes = tuple(nodes)
             fields = card.fields
             if letter == "X":
                 self._instance(card, scope, prefix, shown_prefix, ports, params, instances, nodes)
                 continue
-            positional = [f for f in fields if type(f) is not Assign]
-            assigns = [f for f in fields if type(f) is Assign]
-            element = Element(name=name, key=name.lower(), kind=letter, nodes=nodes,
-                              location=card.location, instances=instances)
+            location = new(Location, (head.path, head.line, head.column))
+            value = value_text = model = source = None
+            control = ()
+            params_of = None
+            if len(fields) == 1 and type(fields[0]) is not Assign:
+                positional = fields                   # the common case: one value or model
+                assigns = ()
+            else:
+                positional = [f for f in fields if type(f) is not Assign]
+                assigns = [f for f in fields if type(f) is Assign]
             if letter in "RCL":
                 value_field = positional[0] if positional else next(
                     (a.value for a in assigns if a.key.text.lower() in (letter.lower(), "value")), None)
                 if value_field is None:
-                    raise InputError(card.location, f"{card.name.text} has no value")
-                element.value = ex.element_value(value_field, params, name, letter)
-                element.value_text = value_field.text if type(value_field) in (Word, Expr) else None
-                element.params = self._assigns(assigns, params)
+                    raise InputError(location, f"{head.text} has no value")
+                value = ex.element_value(value_field, params, name, letter)
+                value_text = value_field.text if type(value_field) in (Word, Expr) else None
+                params_of = self._assigns(assigns, params) if assigns else {}
             elif letter == "D":
                 if not positional or type(positional[0]) is not Word:
-                    raise InputError(card.location, f"{card.name.text} names no diode model")
-                element.model = self.model_key(positional[0], scope, prefix, params)
-                element.params = self._assigns(assigns, params)
+                    raise InputError(location, f"{head.text} names no diode model")
+                typed = positional[0].text
+                model = model_of.get(typed)
+                if model is None:
+                    model = model_of[typed] = self.model_key(positional[0], scope, prefix, params)
+                params_of = self._assigns(assigns, params) if assigns else {}
                 if len(positional) > 1:
-                    element.value = ex._number(positional[1], params, f"{name}'s area")
+                    value = ex._number(positional[1], params, f"{name}'s area")
                 else:
-                    element.value = element.params.get("area")
+                    value = params_of.get("area")
             elif letter in "VI":
-                element.source = self._source(card, positional, params, name)
-                element.value = element.source.dc
+                source = self._source(card, positional, params, name)
+                value = source.dc
             elif letter in "QJM":
                 words = [f for f in positional if type(f) is Word]
                 if words:
-                    element.model = self._maybe_model(words, scope, prefix, params)
-                element.params = self._assigns(assigns, params)
+                    model = self._maybe_model(words, scope, prefix, params)
+                params_of = self._assigns(assigns, params)
             elif letter in "EG":
                 if positional and type(positional[0]) in (Word, Expr) and (
                         type(positional[0]) is Expr or parse_number(positional[0].text) is not None):
-                    element.value = ex._number(positional[0], params, f"{name}'s gain")
+                    value = ex._number(positional[0], params, f"{name}'s gain")
             elif letter in "FH":
                 if not positional or type(positional[0]) is not Word:
-                    raise InputError(card.location, f"{card.name.text} names no controlling source")
-                element.control = (prefix + positional[0].text.lower(),)
+                    raise InputError(location, f"{head.text} names no controlling source")
+                control = (prefix + positional[0].text.lower(),)
                 if len(positional) > 1:
-                    element.value = ex._number(positional[1], params, f"{name}'s gain")
+                    value = ex._number(positional[1], params, f"{name}'s gain")
             elif letter == "K":
                 words = [f for f in positional if type(f) is Word]
                 if len(words) < 3:
-                    raise InputError(card.location, f"{card.name.text} wants two inductors and a coupling")
-                element.control = (prefix + words[0].text.lower(), prefix + words[1].text.lower())
-                element.value = ex._number(positional[2], params, f"{name}'s coupling")
-            append(element)
+                    raise InputError(location, f"{head.text} wants two inductors and a coupling")
+                control = (prefix + words[0].text.lower(), prefix + words[1].text.lower())
+                value = ex._number(positional[2], params, f"{name}'s coupling")
+            append(Element(name, name.lower(), letter, nodes, location, instances, value,
+                           value_text, model, {} if params_of is None else params_of, source,
+                           None, control))
+        self.nets.update(net_of.values())
 
     def _maybe_model(self, words, scope, prefix, params):
         for w in words:

@@ -3,7 +3,10 @@
 The grammar (grammar/netlist.lark) is the definition of the language. Most cards of an
 exported schematic are plain one-line cards (`R12 a b 4.7k`); for those a fast path splits
 the line on white space and gives exactly the result the grammar gives (a differential test,
-tests/test_reader_fastpath.py, holds it to that). Every other card is parsed by the grammar.
+tests/test_reader_fastpath.py, holds it to that). Two more fast paths read cards of words,
+calls and key=value assignments, on one line (`simple_card`) or over `+` continuation lines
+(`continued_card`). Every other card (braces, quotes, comments inside it) is parsed by the
+grammar, which is built, with lark imported, only when a file has such a card.
 """
 
 from __future__ import annotations
@@ -13,12 +16,8 @@ from dataclasses import dataclass
 from functools import lru_cache
 from importlib import resources
 
-from lark import Lark, Token, Transformer, v_args
-from lark.exceptions import (UnexpectedCharacters, UnexpectedEOF, UnexpectedInput,
-                             UnexpectedToken, VisitError)
-
-from drc.cards import (Assign, Call, Card, ControlCard, DotCard, ElementCard, Expr, Str, Word,
-                       element_card)
+from drc.cards import (NODE_COUNTS, Assign, Call, Card, ControlCard, DotCard, ElementCard, Expr,
+                       Str, Word, element_card)
 from drc.errors import InputError, Location
 
 
@@ -31,7 +30,8 @@ class ParsedFile:
 
 
 @lru_cache(maxsize=1)
-def netlist_parser() -> Lark:
+def netlist_parser():
+    from lark import Lark
     text = resources.files("drc.grammar").joinpath("netlist.lark").read_text(encoding="utf-8")
     return Lark(text, parser="lalr", lexer="contextual", start=["netlist", "card"],
                 maybe_placeholders=False)
@@ -44,62 +44,72 @@ _PLAIN = re.compile(r"[^\s(){}'\"=,;$]+(?:[ \t\f]+[^\s(){}'\"=,;$]+)*[ \t\f\r]*"
 _TOKEN = re.compile(r"[^ \t\f\r]+")
 
 
-class _ToCards(Transformer):
-    """Turns the grammar's tree into cards; locations are shifted by the card's first line."""
+@lru_cache(maxsize=1)
+def _to_cards():
+    """The transformer class that turns the grammar's tree into cards (made on first use)."""
+    from lark import Token, Transformer
 
-    def __init__(self, path: str, line_offset: int):
-        super().__init__(visit_tokens=False)
-        self.path = path
-        self.line_offset = line_offset
+    class _ToCards(Transformer):
+        """Turns the grammar's tree into cards; locations are shifted by the card's first line."""
 
-    def _loc(self, token: Token) -> Location:
-        return Location(self.path, token.line + self.line_offset, token.column)
+        def __init__(self, path: str, line_offset: int):
+            super().__init__(visit_tokens=False)
+            self.path = path
+            self.line_offset = line_offset
 
-    def word(self, children):
-        (t,) = children
-        return Word(str(t), self._loc(t))
+        def _loc(self, token) -> Location:
+            return Location(self.path, token.line + self.line_offset, token.column)
 
-    def expr(self, children):
-        (t,) = children
-        return Expr(str(t)[1:-1], self._loc(t))
+        def _word(self, token) -> Word:
+            return Word(str(token), self.path, token.line + self.line_offset, token.column)
 
-    def string(self, children):
-        (t,) = children
-        return Str(str(t)[1:-1], self._loc(t))
+        def word(self, children):
+            (t,) = children
+            return self._word(t)
 
-    def call(self, children):
-        name, *args = children
-        return Call(Word(str(name), self._loc(name)), tuple(args))
+        def expr(self, children):
+            (t,) = children
+            return Expr(str(t)[1:-1], self._loc(t))
 
-    def assign(self, children):
-        key, value = children
-        return Assign(Word(str(key), self._loc(key)), value)
+        def string(self, children):
+            (t,) = children
+            return Str(str(t)[1:-1], self._loc(t))
 
-    def element(self, children):
-        name, *fields = children
-        return element_card(Word(str(name), self._loc(name)), tuple(fields))
+        def call(self, children):
+            name, *args = children
+            return Call(self._word(name), tuple(args))
 
-    def dot_card(self, children):
-        head, *fields = children
-        word = Word(str(head), self._loc(head))
-        return DotCard(str(head)[1:].lower(), word, tuple(fields))
+        def assign(self, children):
+            key, value = children
+            return Assign(self._word(key), value)
 
-    def control(self, children):
-        (t,) = children
-        return ControlCard(self._loc(t), str(t))
+        def element(self, children):
+            name, *fields = children
+            return element_card(self._word(name), tuple(fields))
 
-    def card(self, children):
-        return children[0]
+        def dot_card(self, children):
+            head, *fields = children
+            word = self._word(head)
+            return DotCard(str(head)[1:].lower(), word, tuple(fields))
 
-    def netlist(self, children):
-        title = ""
-        cards = []
-        for c in children:
-            if isinstance(c, Token):
-                title = str(c)
-            else:
-                cards.append(c)
-        return title, cards
+        def control(self, children):
+            (t,) = children
+            return ControlCard(self._loc(t), str(t))
+
+        def card(self, children):
+            return children[0]
+
+        def netlist(self, children):
+            title = ""
+            cards = []
+            for c in children:
+                if isinstance(c, Token):
+                    title = str(c)
+                else:
+                    cards.append(c)
+            return title, cards
+
+    return _ToCards
 
 
 def split_lines(text: str) -> list[str]:
@@ -117,14 +127,37 @@ def _is_end(stripped: str) -> bool:
     return low == ".end" and (len(stripped) == 4 or stripped[4] in " \t")
 
 
+_new = tuple.__new__          # a named tuple made without its Python-level __new__
+
+
+def _words(line: str, start: int, path: str, line_number: int) -> list[Word]:
+    """The words of a line from `start` on, split at spaces, tabs and form feeds."""
+    if "\t" in line or "\f" in line or line.find("  ", start) >= 0:
+        return [_new(Word, (m.group(), path, line_number, m.start() + 1))
+                for m in _TOKEN.finditer(line, start)]
+    out = []                   # one space between words: columns follow from the lengths
+    column = start + 1
+    for text in line.split():
+        out.append(_new(Word, (text, path, line_number, column)))
+        column += len(text) + 1
+    return out
+
+
 def plain_card(line: str, path: str, line_number: int) -> ElementCard | None:
     """The fast path: the card for a plain one-line element card, or None if it is not plain."""
     start = len(line) - len(line.lstrip(" \t\f"))
     if start >= len(line) or line[start] not in _ASCII_LETTERS or _PLAIN.fullmatch(line, start) is None:
         return None
-    words = [Word(m.group(), Location(path, line_number, m.start() + 1))
-             for m in _TOKEN.finditer(line, start)]
-    return element_card(words[0], tuple(words[1:]))
+    return _plain_element(_words(line, start, path, line_number))
+
+
+def _plain_element(words: list[Word]) -> ElementCard:
+    """element_card for a list of plain words (all of them Word), without its checks when
+    they cannot fail."""
+    count = NODE_COUNTS.get(words[0].text[0].upper())
+    if count is None or len(words) <= count:     # X lines, unknown letters, too few nodes
+        return element_card(words[0], tuple(words[1:]))
+    return _new(ElementCard, (words[0], tuple(words[1:count + 1]), tuple(words[count + 1:])))
 
 
 # braces, quotes, comments, and white space other than what separates fields (a no-break
@@ -139,20 +172,52 @@ def simple_card(line: str, path: str, line_number: int) -> Card | None:
     start = len(line) - len(line.lstrip(" \t\f"))
     if start >= len(line) or _SIMPLE_CHARS.search(line, start) is not None:
         return None
-    tokens = [(m.group(), m.start() + 1) for m in _SIMPLE_TOKEN.finditer(line, start)]
-    tokens = [t for t in tokens if t[0] != ","]
+    return _simple_tokens_card(_simple_tokens(line, start, path, line_number))
+
+
+def continued_card(lines: list[str], first: int, last: int, path: str) -> Card | None:
+    """The third fast path: a card of words, calls and assignments spread over `+` lines
+    (lines[first] to lines[last], 0-based, with blank and comment lines between), or None
+    when the grammar must read it. Each physical line is split as simple_card splits one;
+    a '+' and the line end separate fields, as they do in the grammar."""
+    line = lines[first]
+    start = len(line) - len(line.lstrip(" \t\f"))
+    if start >= len(line) or _SIMPLE_CHARS.search(line, start) is not None:
+        return None
+    tokens = _simple_tokens(line, start, path, first + 1)
+    for k in range(first + 1, last + 1):
+        line = lines[k]
+        stripped = line.lstrip(" \t\f")
+        if not stripped or stripped[0] != "+":
+            if stripped and stripped[0] not in "*;":
+                return None
+            continue                                   # a blank or comment line between
+        start = len(line) - len(stripped) + 1          # after the '+'
+        if _SIMPLE_CHARS.search(line, start) is not None:
+            return None
+        tokens += _simple_tokens(line, start, path, k + 1)
+    return _simple_tokens_card(tokens)
+
+
+def _simple_tokens(line: str, start: int, path: str, line_number: int) -> list[Word]:
+    """Each token from `start` on as a Word (the punctuation too); the commas are left out."""
+    return [_new(Word, (m.group(), path, line_number, m.start() + 1))
+            for m in _SIMPLE_TOKEN.finditer(line, start) if m.group() != ","]
+
+
+def _simple_tokens_card(tokens: list[Word]) -> Card | None:
     if not tokens:
         return None
-    head_text = tokens[0][0]
+    head = tokens[0]
+    head_text = head.text
     if head_text[0] == ".":
         if not _DOT_NAME.fullmatch(head_text):
             return None
     elif head_text[0] not in _ASCII_LETTERS:
         return None
-    fields, k = _simple_fields(tokens, 1, path, line_number)
+    fields, k = _simple_fields(tokens, 1)
     if fields is None or k != len(tokens):
         return None
-    head = Word(head_text, Location(path, line_number, tokens[0][1]))
     if head_text[0] == ".":
         return DotCard(head_text[1:].lower(), head, tuple(fields))
     return element_card(head, tuple(fields))
@@ -162,20 +227,20 @@ _DOT_NAME = re.compile(r"\.[A-Za-z][A-Za-z0-9_]*")
 _PUNCT = frozenset("()=")
 
 
-def _simple_fields(tokens, k, path, line_number):
+def _simple_fields(tokens, k):
     """Fields from tokens[k:] up to an unmatched ')' (as the grammar's `_field*` reads them)."""
     fields = []
     n = len(tokens)
     while k < n:
-        text, column = tokens[k]
+        word = tokens[k]
+        text = word.text
         if text == ")":
             return fields, k
         if text in _PUNCT:
             return None, k
-        word = Word(text, Location(path, line_number, column))
         nxt = tokens[k + 1][0] if k + 1 < n else None
         if nxt == "(":
-            args, k = _simple_fields(tokens, k + 2, path, line_number)
+            args, k = _simple_fields(tokens, k + 2)
             if args is None or k >= n or tokens[k][0] != ")":
                 return None, k
             fields.append(Call(word, tuple(args)))
@@ -183,10 +248,9 @@ def _simple_fields(tokens, k, path, line_number):
         elif nxt == "=":
             if k + 2 >= n or tokens[k + 2][0] in _PUNCT:
                 return None, k
-            vtext, vcol = tokens[k + 2]
-            value = Word(vtext, Location(path, line_number, vcol))
+            value = tokens[k + 2]
             if k + 3 < n and tokens[k + 3][0] == "(":
-                args, k = _simple_fields(tokens, k + 4, path, line_number)
+                args, k = _simple_fields(tokens, k + 4)
                 if args is None or k >= n or tokens[k][0] != ")":
                     return None, k
                 fields.append(Assign(word, Call(value, tuple(args))))
@@ -200,36 +264,74 @@ def _simple_fields(tokens, k, path, line_number):
     return fields, k
 
 
+# What a plain card may not hold: the characters that open groups, expressions, strings,
+# assignments and comments, and white space other than spaces, tabs and form feeds. A line
+# clear of all of them, starting with a letter, is one _PLAIN matches (lines hold no CR or LF).
+_NOT_PLAIN = frozenset("(){}'\"=,;$" "\n\v\r\x1c\x1d\x1e\x1f\x85\xa0\u1680\u2000\u2001\u2002"
+                       "\u2003\u2004\u2005\u2006\u2007\u2008\u2009\u200a\u2028\u2029\u202f"
+                       "\u205f\u3000")
+# element letters (either case) -> node count; X and unknown letters go through element_card
+_COUNTS = {**{k.lower(): v for k, v in NODE_COUNTS.items()}, **NODE_COUNTS}
+
+
 def read_text(text: str, path: str, has_title: bool = True) -> ParsedFile:
     """Cards of one file. A top netlist's first line is its title; an included file has none."""
     lines = split_lines(text)
     title = lines[0] if has_title and lines else ""
     cards: list[Card] = []
+    append = cards.append
     n = len(lines)
     i = 1 if has_title else 0
-    parser = netlist_parser()
+    strips = [line.lstrip(" \t\f") for line in lines]
+    letters = _ASCII_LETTERS
+    clear = _NOT_PLAIN.isdisjoint
+    counts = _COUNTS
+    new = _new
     while i < n:
-        line = lines[i]
-        stripped = line.lstrip(" \t\f")
-        if not stripped or stripped[0] == "*" or stripped[0] == ";":
+        stripped = strips[i]
+        if not stripped:
             i += 1
             continue
-        if stripped[0] == "+":
+        first = stripped[0]
+        if first == "*" or first == ";":
+            i += 1
+            continue
+        line = lines[i]
+        if first == "+":
             raise InputError(Location(path, i + 1, len(line) - len(stripped) + 1),
                              "a '+' continuation line with no card above it")
+        # the card's last line: the last '+' line after it, past blank and comment lines
         last = i
         j = i + 1
         while j < n:
-            nxt = lines[j].lstrip(" \t\f")
+            nxt = strips[j]
             if not nxt or nxt[0] == "*" or nxt[0] == ";":
                 j += 1
-                continue
-            if nxt[0] == "+":
+            elif nxt[0] == "+":
                 last = j
                 j += 1
-                continue
-            break
-        if stripped[0] == ".":
+            else:
+                break
+        if last == i and first in letters and clear(stripped):
+            # the fast path, inlined (plain_card): a one-line card of words only
+            if "\t" in stripped or "\f" in stripped or "  " in stripped:
+                words = _words(line, len(line) - len(stripped), path, i + 1)
+            else:
+                words = []
+                column = len(line) - len(stripped) + 1
+                line_number = i + 1
+                for word in stripped.split():
+                    words.append(new(Word, (word, path, line_number, column)))
+                    column += len(word) + 1
+            count = counts.get(first)
+            if count is None or len(words) <= count:
+                append(element_card(words[0], tuple(words[1:])))
+            else:
+                append(new(ElementCard, (words[0], tuple(words[1:count + 1]),
+                                         tuple(words[count + 1:]))))
+            i = j                # the blank and comment lines after it are skipped too
+            continue
+        if first == ".":
             if _is_end(stripped):
                 break
             if _CONTROL.match(stripped):
@@ -239,33 +341,28 @@ def read_text(text: str, path: str, has_title: bool = True) -> ParsedFile:
                 if end == n:
                     raise InputError(Location(path, i + 1, len(line) - len(stripped) + 1),
                                      "'.control' block with no '.endc'")
-                cards.append(ControlCard(Location(path, i + 1, len(line) - len(stripped) + 1),
-                                         "\n".join(lines[i:end + 1])))
+                append(ControlCard(Location(path, i + 1, len(line) - len(stripped) + 1),
+                                   "\n".join(lines[i:end + 1])))
                 i = end + 1
                 continue
-        if last == i:
-            card = plain_card(line, path, i + 1)
-            if card is None:
-                card = simple_card(line, path, i + 1)
-            if card is not None:
-                cards.append(card)
-                i += 1
-                continue
-        cards.append(parse_card("\n".join(lines[i:last + 1]), path, i))
-        i = last + 1
+        card = simple_card(line, path, i + 1) if last == i else continued_card(lines, i, last, path)
+        append(card if card is not None else parse_card("\n".join(lines[i:last + 1]), path, i))
+        i = j
     return ParsedFile(path, title, cards, lines)
 
 
 def parse_card(text: str, path: str, line_offset: int) -> Card:
     """One card's text (its continuation lines included) through the grammar."""
+    from lark.exceptions import UnexpectedInput
     try:
         tree = netlist_parser().parse(text, start="card")
     except UnexpectedInput as error:
         raise _syntax_error(error, text, path, line_offset) from None
-    return _transform(_ToCards(path, line_offset), tree)
+    return _transform(_to_cards()(path, line_offset), tree)
 
 
-def _transform(transformer: Transformer, tree):
+def _transform(transformer, tree):
+    from lark.exceptions import VisitError
     try:
         return transformer.transform(tree)
     except VisitError as error:
@@ -276,18 +373,20 @@ def _transform(transformer: Transformer, tree):
 
 def parse_whole(text: str, path: str) -> tuple[str, list[Card]]:
     """A whole file through the grammar alone (the reference the fast path is tested against)."""
+    from lark.exceptions import UnexpectedInput
     try:
         tree = netlist_parser().parse(text if text.endswith("\n") else text + "\n", start="netlist")
     except UnexpectedInput as error:
         raise _syntax_error(error, text, path, 0) from None
-    title, cards = _transform(_ToCards(path, 0), tree)
+    title, cards = _transform(_to_cards()(path, 0), tree)
     for k, card in enumerate(cards):
         if type(card) is DotCard and card.keyword == "end":
             return title, cards[:k]
     return title, cards
 
 
-def _syntax_error(error: UnexpectedInput, text: str, path: str, line_offset: int) -> InputError:
+def _syntax_error(error, text: str, path: str, line_offset: int) -> InputError:
+    from lark.exceptions import UnexpectedCharacters, UnexpectedEOF, UnexpectedToken
     line = getattr(error, "line", 1) or 1
     column = getattr(error, "column", 1) or 1
     where = Location(path, line + line_offset, column)

@@ -39,16 +39,29 @@ def scale_of(letters: str) -> tuple[float, str, str]:
     return 1.0, "", letters
 
 
+_READ: dict[str, Number | None] = {}     # text -> parse_number(text): a board repeats its values
+_READ_MAX = 1 << 16                      # emptied when full, so that it stays small
+_UNREAD = object()
+
+
 def parse_number(text: str) -> Number | None:
     """A SPICE number, or None when the text is not one. Raises OverflowError past float."""
+    number = _READ.get(text, _UNREAD)
+    if number is not _UNREAD:
+        return number
     m = _NUMBER.fullmatch(text)
     if m is None:
-        return None
-    scale, suffix, trailing = scale_of(m.group(2))
-    value = float(m.group(1)) * scale
-    if math.isinf(value):
-        raise OverflowError(text)
-    return Number(value, suffix, trailing)
+        number = None
+    else:
+        scale, suffix, trailing = scale_of(m.group(2))
+        value = float(m.group(1)) * scale
+        if math.isinf(value):
+            raise OverflowError(text)
+        number = Number(value, suffix, trailing)
+    if len(_READ) >= _READ_MAX:
+        _READ.clear()
+    _READ[text] = number
+    return number
 
 
 def parse_iec_code(text: str) -> float | None:

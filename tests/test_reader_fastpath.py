@@ -1,11 +1,12 @@
-"""The reader's fast paths (`plain_card`, `simple_card`) against the grammar.
+"""The reader's fast paths (`plain_card`, `simple_card`, `continued_card`) against the grammar.
 
 The grammar (grammar/netlist.lark, read by `parse_whole`) is the definition of the language;
 the fast paths are an optimisation and must give exactly the cards it gives, types and
 locations included (compared with `same_card`). Checked over the whole test corpus and the
 samples, and over generated cards: plain ones, ones with calls, assignments, commas, odd
-spacing and tabs, and ones the fast paths must refuse (braces, quotes, comments,
-continuations), which must still come out as the grammar reads them.
+spacing and tabs, the same split over `+` continuation lines (with blank and comment lines
+between), and ones the fast paths must refuse (braces, quotes, comments), which must still
+come out as the grammar reads them.
 """
 
 from pathlib import Path
@@ -15,7 +16,8 @@ from hypothesis import HealthCheck, given, settings, strategies as st
 
 from drc.cards import same_card
 from drc.errors import InputError
-from drc.reader import parse_card, parse_whole, plain_card, read_text, simple_card
+from drc.reader import (continued_card, parse_card, parse_whole, plain_card, read_text,
+                        simple_card, split_lines)
 
 ROOT = Path(__file__).resolve().parent.parent
 NETLIST_SUFFIXES = {".cir", ".sp", ".net", ".spice", ".inc", ".lib", ".mod"}
@@ -237,3 +239,91 @@ def test_edge_files(text):
     # bugs found here: the grammar kept the title's CR and did not skip ';' lines or a form
     # feed before a comment; the reader took `.controlx` for `.control`
     assert_same(text)
+
+
+# ------------------------------------------------------------- cards over continuation lines
+
+JOINTS = st.sampled_from(["\n+ ", "\n+", "\n+\t", "\n  + ", "\n* between\n+ ", "\n\n+ ",
+                          "\n; note\n\t+ ", "\n\f+  ", "\n*\n\n+"])
+
+
+@st.composite
+def split_card(draw, lines=None):
+    """A one-line card and the same card with some of its spaces (after the head) made into
+    continuation joints: (line, continued text)."""
+    line = draw(lines if lines is not None else st.one_of(plain_line(), simple_line()))
+    start = len(line) - len(line.lstrip(" \t\f"))
+    spaces = [k for k, ch in enumerate(line) if ch == " " and k > start]
+    chosen = sorted(draw(st.sets(st.sampled_from(spaces), min_size=1, max_size=4))) if spaces else []
+    out, at = [], 0
+    for k in chosen:
+        out += [line[at:k], draw(JOINTS)]
+        at = k + 1
+    return line, "".join(out) + line[at:]
+
+
+def continued(text):
+    """continued_card over the lines of one card's text (its first line is line 2)."""
+    lines = ["title"] + split_lines(text)
+    last = max(k for k, ln in enumerate(lines) if ln.lstrip(" \t\f").startswith("+") or k == 1)
+    return continued_card(lines, 1, last, "g.cir")
+
+
+@FAST
+@given(split_card())
+def test_generated_continued_cards(pair):
+    line, text = pair
+    assert_same("title\n" + text + "\n")
+    try:
+        one = plain_card(line, "g.cir", 2) or simple_card(line, "g.cir", 2)
+    except InputError:
+        one = None
+    if one is not None:
+        # a card the one-line fast paths take is one the continued fast path takes when split
+        assert continued(text) is not None, text
+
+
+@FEWER
+@given(st.lists(st.one_of(split_card().map(lambda p: p[1]), plain_line(), simple_line()),
+                min_size=1, max_size=5),
+       st.lists(st.sampled_from(["", "* comment", "   ", "; note"]), min_size=5, max_size=5))
+def test_generated_files_with_continued_cards(cards, fillers):
+    body = []
+    for card, filler in zip(cards, fillers):
+        body += [card, filler]
+    assert_same("title\n" + "\n".join(body) + "\n")
+
+
+@FAST
+@given(split_card(plain_line()), REFUSED_TAILS, st.booleans())
+def test_refused_continued_cards_still_read_right(pair, tail, on_a_new_line):
+    # a brace, quote or comment on any line of a continued card: the grammar reads it
+    _, text = pair
+    text = text + ("\n+" if on_a_new_line else "") + tail
+    assert continued(text) is None
+    assert_same("title\n" + text + "\n")
+
+
+@pytest.mark.parametrize("text", [
+    "VP1 p 0 PULSE(0 1.8 0 10n 10n\n+ 0.25m 0.5m)",
+    "VP1 p 0 PULSE(0 1.8 0\n* a comment between\n\n+ 10n 10n\n+ 0.25m 0.5m)",
+    "R1 a b\n+ 4.7k",
+    "R1 a b\n+4.7k tc1=0\n+ tc2 = 1u",
+    "X1 a b cell\n+ params: w=2 l = 3",
+    ".model DX D(IS=1e-14\n+ N=1.8 RS=0.5)",
+    "D1 a b\n+\n+ dmod",
+])
+def test_continued_cards_take_the_fast_path(text):
+    # the bench's continued cards (5 % of an exported board) are read without the grammar
+    assert continued(text) is not None
+    assert_same("title\n" + text + "\n")
+
+
+@pytest.mark.parametrize("text", [
+    "R1 a b\n+ {r}", "R1 a b ; note\n+ 1k", "V1 a 0 PULSE(0 1\n+ 2 $ c\n+ 3)",
+    "R1 a b\n+ 1k\u00a0", "R1 a b\n+ 'x'", "V1 a 0 PULSE(0 1\n+ 2", "R1 a b\n+ = 1k",
+    "R1 a b\n+ 1k)", "Z1 a b\n+ 1k", "R1 a\n+", "X1\n+ a b",
+])
+def test_continued_cards_the_fast_path_leaves_or_refuses(text):
+    # refused by the fast path, or an error: either way the grammar's outcome
+    assert_same("title\n" + text + "\n")
