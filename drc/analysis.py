@@ -284,6 +284,7 @@ class Phase:
     extra_resistance_ohm: float
     words: str                      # "PA6 high", "PB1 low", "always"
     pin_states: dict = field(default_factory=dict)   # for a network: pin label -> high?
+    drive_key: bytes = b""          # the drive's values, for sharing solutions (drc.memo)
 
 
 @dataclass
@@ -1052,12 +1053,14 @@ def _classify(b: Branch, rail_nets, pin_nets, corners: Corners) -> None:
             drive_key = (id(la), id(lk), sign)
             v = _DRIVES.get(drive_key)
             if v is None or v[0] is not la or v[1] is not lk:
-                v = _DRIVES[drive_key] = (la, lk, sign * (la - lk))
-            v = v[2]
+                arr = sign * (la - lk)
+                v = _DRIVES[drive_key] = (la, lk, arr, arr.tobytes())
+            v, v_bytes = v[2], v[3]
             words = " and ".join(w for w in (
                 f"{a_part.label} {'high' if ah else 'low'}" if a_kind == "pin" else "",
                 f"{k_part.label} {'high' if kh else 'low'}" if k_kind == "pin" else "") if w) or "always"
-            phases.append(Phase(share, v, resistance(a_kind, a_part) + resistance(k_kind, k_part), words))
+            phases.append(Phase(share, v, resistance(a_kind, a_part) + resistance(k_kind, k_part), words,
+                                drive_key=v_bytes))
     if not phases:
         b.note = f"{b.id}: its pins are never in a state that drives it"
         return
@@ -1131,7 +1134,8 @@ def solve_branch(b: Branch, corners: Corners, flat: FlatDesign) -> None:
                 stage.append(diode_params(flat, d))
         stages.append(stage)
     key = (tuple(tuple(st) for st in stages), float(b.series_resistance_ohm[corners.nominal]),
-           corners.serial, tuple((ph.share, id(ph.drive_V), ph.extra_resistance_ohm) for ph in b.phases),
+           corners.serial, tuple((ph.share, ph.drive_key or value_key(ph.drive_V), ph.extra_resistance_ohm)
+                                 for ph in b.phases),
            tuple(tuple(d.key in led_params for d in st) for st in b.stages), b.reversed,
            tuple(p is not None for p in (b.pin, b.sink_pin)))
     known = STRING_SOLUTIONS.get(key)

@@ -116,7 +116,15 @@ def prepare(report: dict) -> dict:
 def render_json(report: dict) -> str:
     """The report as JSON text: contract key order, indent 2, trailing newline, byte-stable."""
     ordered = _ordered(prepare(report), _TOP_KEYS, _top_children)
-    return json.dumps(ordered, indent=2, ensure_ascii=False, allow_nan=False) + "\n"
+    # indented for a person up to a few thousand entries; past that, Python's C encoder
+    # (which only writes unindented JSON) keeps a whole board's report fast
+    size = len(ordered.get("findings") or ()) + len(ordered.get("branches") or ())
+    if size <= LARGE_REPORT:
+        return json.dumps(ordered, indent=2, ensure_ascii=False, allow_nan=False) + "\n"
+    return json.dumps(ordered, ensure_ascii=False, allow_nan=False, separators=(",", ":")) + "\n"
+
+
+LARGE_REPORT = 5000
 
 
 def plain(value: Any) -> Any:
