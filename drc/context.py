@@ -598,12 +598,13 @@ def _read_pin(label: str, reader: _Reader, assumptions: list[str]) -> PinSpec:
         reader.fail("net", "give source or net, not both")
     supply = reader.name("supply")
 
+    defaulted: list[str] = []
+
     def rated(key: str, kind: str, fallback: float, unit: str) -> float:
         value = reader.quantity(key, kind, nonnegative=(kind != "current"),
                                 positive=(kind == "current"))
         if value is None and key not in reader.table:
-            assumptions.append(f"pin {label}: no {key}: {format_si(fallback, unit)} assumed "
-                               f"(built-in pin profile, from memory)")
+            defaulted.append(f"{key} {format_si(fallback, unit)}")
             return fallback
         return value if value is not None else fallback
 
@@ -611,6 +612,10 @@ def _read_pin(label: str, reader: _Reader, assumptions: list[str]) -> PinSpec:
     max_current = rated("max_current", "current", default.max_current_A, "A")
     clamp_margin = rated("clamp_above_supply", "voltage", default.clamp_above_supply_V, "V")
     clamp_current = rated("clamp_current", "current", default.clamp_current_A, "A")
+    if defaulted:
+        # one line per pin: the defaults it took, all from the built-in profile
+        assumptions.append(f"pin {label}: {', '.join(defaulted)} assumed "
+                           f"(built-in pin profile, from memory)")
 
     drive = frequency = duty = phase = None
     timing = [k for k in ("drive", "frequency", "duty", "phase") if k in reader.table]

@@ -144,7 +144,7 @@ def _cautions(design: Design, findings: list[Finding]) -> list[str]:
     out = [GENERAL_CAUTION]
     if any(s.lithium for s in design.supplies.values()):
         out.append(CAUTIONS["lithium"])
-    if any(f.rule == "flicker" for f in findings) or any(
+    if any(f.rule == "flicker" and 3 <= f.values.get("frequency_Hz", 0) <= 60 for f in findings) or any(
             p.drive == "toggle" and p.frequency_Hz and 3 <= p.frequency_Hz <= 60 for p in design.pins.values()):
         out.append(CAUTIONS["flashing"])
     if any(l.eye_safety for l in design.leds.values()):
@@ -211,7 +211,7 @@ def run_check(paths: list[str], config: str | None, rule_folders: list[str], *, 
                 if multiple:
                     entry = {"path": r.path, **entry}
                 branches.append(entry)
-        pumps.extend(r.pumps)
+        pumps.extend(({"path": r.path, **p} if multiple else p) for p in r.pumps)
         findings.extend(r.findings)
         anchors.extend(r.anchors)
         sources.update(r.sources)

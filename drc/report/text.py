@@ -207,14 +207,20 @@ def _indicators(branches) -> list[str]:
     if not branches:
         return ["Indicators: none found", ""]
     headers = ["LED", "drive", "from", "I low", "I nominal", "I high", "Vf nominal"]
+    several = any("path" in b for b in branches)
     rows = []
     for branch in branches:
         current = _spread(branch.get("current_A"), "A")
         forward = format_si((branch.get("forward_V") or {}).get("nominal"), "V")
-        rows.append([str(branch.get("led", "?")), str(branch.get("drive", "?")),
-                     str(branch.get("source") or "-"), *current, forward])
+        row = [str(branch.get("led", "?")), str(branch.get("drive", "?")),
+               str(branch.get("source") or "-"), *current, forward]
+        rows.append(([str(branch.get("path", ""))] if several else []) + row)
+    right = {3, 4, 5, 6}
+    if several:
+        headers = ["netlist"] + headers
+        right = {k + 1 for k in right}
     return _table(f"Indicators ({len(rows)}): average current over all corners",
-                  headers, rows, right={3, 4, 5, 6})
+                  headers, rows, right=right)
 
 
 def _pumps(pumps) -> list[str]:
@@ -222,13 +228,19 @@ def _pumps(pumps) -> list[str]:
         return []
     headers = ["pump", "topology", "stages", "output", "peak low", "peak nom", "peak high",
                "mean low", "mean nom", "mean high"]
+    several = any("path" in p for p in pumps)
     rows = []
     for pump in pumps:
-        rows.append([str(pump.get("id", "?")), str(pump.get("topology", "?")),
-                     str(pump.get("stages", "?")), str(pump.get("output_net", "?")),
-                     *_spread(pump.get("peak_V"), "V"), *_spread(pump.get("average_V"), "V")])
+        row = [str(pump.get("id", "?")), str(pump.get("topology", "?")),
+               str(pump.get("stages", "?")), str(pump.get("output_net", "?")),
+               *_spread(pump.get("peak_V"), "V"), *_spread(pump.get("average_V"), "V")]
+        rows.append(([str(pump.get("path", ""))] if several else []) + row)
+    right = set(range(2, 10)) - {3}
+    if several:
+        headers = ["netlist"] + headers
+        right = {k + 1 for k in right}
     return _table(f"Pumps ({len(rows)}): output against ground in steady state",
-                  headers, rows, right=set(range(2, 10)) - {3})
+                  headers, rows, right=right)
 
 
 def _bullets(title: str, items) -> list[str]:
