@@ -10,6 +10,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
+import networkx as nx
 import numpy as np
 
 from drc.design import GROUND, Element
@@ -80,14 +81,24 @@ def classify(region_elements: list[Element], pin_nets: dict, rail_nets: dict,
         net = c.nodes[0] if c.nodes[0] in toggling else c.nodes[1]
         return pin_nets[net].label
 
+    # the diodes as a directed graph, anode to cathode: a ladder is a path through it
+    conduction = nx.MultiDiGraph()
+    for d in diodes:
+        if d.nodes[0] != d.nodes[1]:
+            conduction.add_edge(d.nodes[0], d.nodes[1], key=d.key, element=d)
+
     def transfer_from(net):
-        return [d for d in diodes if d.nodes[0] == net and d.nodes[1] != net]
+        if net not in conduction:
+            return []
+        return [data["element"] for _, _, data in conduction.out_edges(net, data=True)]
 
     def charge_into(net):
-        return [d for d in diodes if d.nodes[1] == net]
+        if net not in conduction:
+            return []
+        return [data["element"] for _, _, data in conduction.in_edges(net, data=True)]
 
     # a chain starts at a pumped node that no transfer diode from another pumped node feeds
-    fed_from_pumped = {d.nodes[1] for d in diodes if d.nodes[0] in pumped}
+    fed_from_pumped = {v for u in pumped if u in conduction for v in conduction.successors(u)}
     pumps = []
     for start, cap in pumped.items():
         if start in fed_from_pumped:
