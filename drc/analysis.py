@@ -28,7 +28,8 @@ from drc.solve import led_model_from_forward_voltages, solve_string
 STRING_SOLUTIONS = Memo()
 NETWORK_SOLUTIONS = Memo()
 PUMP_SOLUTIONS = Memo()
-LED_THRESHOLD_V = 1.4          # a diode dropping at least this at 1 mA is an LED (issue text)
+LED_THRESHOLD_V = 1.4          # a diode dropping at least this at 1 mA is an LED
+INFRARED_LOOKALIKE_V = 1.0     # below the LED threshold but above silicon: perhaps infrared
 SERIES_KINDS = frozenset("RLD")
 
 
@@ -696,6 +697,9 @@ def _find_leds(flat: FlatDesign, context: Context, assumptions: _Assumptions) ->
         usable = model is not None and any(k in model.params for k in ("is", "n", "rs"))
         vf = float(voltage_at_current(params, 1e-3, nominal_K))
         if spec is None and not (usable and vf >= LED_THRESHOLD_V):
+            if usable and INFRARED_LOOKALIKE_V <= vf < LED_THRESHOLD_V:
+                assumptions.add(f"drops {vf:.2f} V at 1 mA: taken as a plain diode; if it is an "
+                                "infrared LED, name it in an [led] table", e.name)
             continue
         colour = spec.colour if spec is not None else None
         if colour is None:
