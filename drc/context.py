@@ -692,6 +692,36 @@ def _read_rule(rule_id: str, reader: _Reader, known: list[str] | None) -> dict[s
     return settings
 
 
+def _guard_limits(limits: "Limits", reader: "_Reader", explicit, errors: "_Errors") -> None:
+    """Limits bound untrusted input, so only the --config file (the checking side's own) may
+    loosen them. A file found beside or above the netlist (drc.toml, STEM.toml, pyproject)
+    comes with the netlist and may only tighten them: no more elements, bytes or time than
+    the defaults, and include folders only inside that file's own folder tree."""
+    def trusted(key: str) -> bool:
+        if key not in reader.table:
+            return True
+        where = reader.at(key)
+        return explicit is not None and where is not None and _same_file(Path(where.path), Path(explicit))
+
+    def refuse(key: str, what: str) -> None:
+        errors.add(reader.at(key), f"[limits] {key} {what}: a config found beside the netlist may "
+                                   "only tighten the limits; loosen them with --config FILE")
+
+    if not trusted("max_elements") and limits.max_elements > DEFAULT_MAX_ELEMENTS:
+        refuse("max_elements", f"raises the limit above {DEFAULT_MAX_ELEMENTS}")
+    if not trusted("max_file_bytes") and limits.max_file_bytes > DEFAULT_MAX_FILE_BYTES:
+        refuse("max_file_bytes", f"raises the limit above {DEFAULT_MAX_FILE_BYTES} bytes")
+    if not trusted("house_rule_time") and limits.house_rule_seconds > DEFAULT_HOUSE_RULE_SECONDS:
+        refuse("house_rule_time", f"raises the limit above {DEFAULT_HOUSE_RULE_SECONDS:g} s")
+    if not trusted("include_folders"):
+        home = Path(reader.at("include_folders").path).absolute().parent.resolve()
+        for folder in limits.include_folders:
+            real = Path(folder).resolve()
+            if real != home and home not in real.parents:
+                refuse("include_folders", f"names {folder}, outside that file's folder")
+                break
+
+
 def load_context(netlist: Path, explicit: Path | None = None, *,
                  rule_ids: Iterable[str] | None = None) -> Context:
     """The design context for `netlist`; InputError/InputErrors for anything wrong in it.
@@ -797,6 +827,7 @@ def load_context(netlist: Path, explicit: Path | None = None, *,
         include_folders=tuple(limits_reader.folders("include_folders")),
         house_rule_seconds=house_rule_seconds or DEFAULT_HOUSE_RULE_SECONDS,
     )
+    _guard_limits(limits, limits_reader, explicit, errors)
     house = _Reader(table("house_rules"), ("house_rules",), where, errors, fallback)
     house.check_keys(_HOUSE_RULES)
     rule_folders = house.folders("folders")

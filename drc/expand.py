@@ -31,6 +31,7 @@ class Limits:
     max_file_bytes: int = 16 * 1024 * 1024
     include_folders: tuple[Path, ...] = ()    # folders beside the top netlist's own tree
     confine: bool = True                      # refuse includes outside those folders
+    max_depth: int = 64                       # subcircuit and include nesting (Python's stack)
 
 
 @dataclass
@@ -90,7 +91,8 @@ class _Expander:
     def __init__(self, top: Path, shown: str, limits: Limits):
         self.top = top
         self.limits = limits
-        self.root = top.resolve().parent
+        # the folder the top netlist was named in (resolved), not its target's if it is a link
+        self.root = top.absolute().parent.resolve()
         self.files: list[str] = [shown]
         self.sources: dict[str, list[str]] = {}
         self.globals: set[str] = set()
@@ -225,6 +227,8 @@ class _Expander:
         if real in self.file_stack:
             chain = " -> ".join(p.name for p in self.file_stack[self.file_stack.index(real):])
             raise InputError(where, f"include cycle: {chain} -> {path.name}")
+        if len(self.file_stack) > self.limits.max_depth:
+            raise InputError(where, f"includes nested deeper than {self.limits.max_depth} levels")
         text = read_source(path, shown, self.limits, where)
         parsed = read_text(text, shown, has_title=False)
         self.sources[shown] = parsed.lines
@@ -380,8 +384,9 @@ class Params:
 # ---------------------------------------------------------------------------- flattening
 
 
-def _count(scope: Scope, memo: dict, chain: list) -> int:
-    """Elements a scope flattens to, counted from the definitions alone (black boxes count 1)."""
+def _count(scope: Scope, memo: dict, chain: list, depth: int = 64) -> int:
+    """Elements a scope flattens to, counted from the definitions alone (black boxes count 1);
+    instances nested deeper than `depth` are refused (the flattening recurses per level)."""
     total = 0
     for card in scope.elements:
         if card.name.text[0] not in "Xx":
@@ -392,6 +397,10 @@ def _count(scope: Scope, memo: dict, chain: list) -> int:
             total += 1
             continue
         ident = id(sub)
+        if len(chain) >= depth and ident not in memo:
+            names = " -> ".join(s.name.text for s in chain[:3]) + " -> ..."
+            raise InputError(card.location, f"subcircuit instances nested deeper than {depth} "
+                             f"levels ({names})")
         if ident in memo:
             if memo[ident] is None:
                 names = " -> ".join(s.name.text for s in chain) + f" -> {sub.name.text}"
@@ -400,7 +409,7 @@ def _count(scope: Scope, memo: dict, chain: list) -> int:
             continue
         memo[ident] = None
         chain.append(sub)
-        memo[ident] = _count(sub.body, memo, chain)
+        memo[ident] = _count(sub.body, memo, chain, depth)
         chain.pop()
         total += memo[ident]
     return total
@@ -412,8 +421,15 @@ def expand(path: str | Path, limits: Limits | None = None) -> FlatDesign:
     shown = str(path)
     top_path = Path(path)
     ex = _Expander(top_path, shown, limits)
+    if limits.confine and top_path.is_symlink():
+        real = top_path.resolve()
+        allowed = [ex.root, *[Path(p).resolve() for p in limits.include_folders]]
+        if not any(real == a or a in real.parents for a in allowed):
+            raise InputError(Location(shown, 1, 1), f"{shown} is a symbolic link to a file "
+                             "outside its folder and the folders the config allows "
+                             "(limits.include_folders)")
     top = ex.load(top_path, shown)
-    size = _count(top, {}, [])
+    size = _count(top, {}, [], limits.max_depth)
     if size > limits.max_elements:
         raise InputError(Location(shown, 1, 1), f"the flattened design would have {size} elements, "
                          f"above the limit of {limits.max_elements} (limits.max_elements)")
@@ -491,6 +507,8 @@ class _Flattener:
                     continue
                 raise InputError(item.location, f"'.model' parameters are name=value, not '{_shown(item)}'")
             values[item.key.text.lower()] = self.ex._number(item.value, params, item.key.text)
+        if mtype.lower() == "d":
+            _check_diode(values, card)
         name = card.fields[0].text
         return Model(name=(key[: len(key) - len(name)] + name) if key.endswith(name.lower()) else name,
                      key=key, type=mtype.lower(), params=values, location=card.location)
@@ -548,6 +566,8 @@ class _Flattener:
                     value = ex._number(positional[1], params, f"{name}'s area")
                 else:
                     value = params_of.get("area")
+                if value is not None and not value > 0:
+                    raise InputError(location, f"{head.text}'s area must be positive, got {value:g}")
             elif letter in "VI":
                 source = self._source(card, positional, params, name)
                 value = source.dc
@@ -674,6 +694,27 @@ class _Flattener:
             del self.entered[id(sub.body)]
         else:
             self.entered[id(sub.body)] = before
+
+
+# diode model parameters that the diode law divides by or takes the logarithm of
+_DIODE_POSITIVE = ("is", "js", "n", "ibv")
+_DIODE_NONNEGATIVE = ("rs",)
+
+
+def _check_diode(values: dict[str, float], card: DotCard) -> None:
+    """A diode model's parameters inside the range the diode law is defined on."""
+    for key in _DIODE_POSITIVE:
+        if key in values and not values[key] > 0:
+            raise InputError(card.location, f"'.model {card.fields[0].text}': {key.upper()} "
+                             f"must be positive, got {values[key]:g}")
+    for key in _DIODE_NONNEGATIVE:
+        if key in values and not values[key] >= 0:
+            raise InputError(card.location, f"'.model {card.fields[0].text}': {key.upper()} "
+                             f"must not be negative, got {values[key]:g}")
+    for key in ("tnom", "tref"):
+        if key in values and not values[key] > -273.15:
+            raise InputError(card.location, f"'.model {card.fields[0].text}': {key.upper()} "
+                             f"is below absolute zero ({values[key]:g} °C)")
 
 
 def _is_value(f) -> bool:

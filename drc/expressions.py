@@ -70,7 +70,8 @@ def _exp(x):
 
 FUNCTIONS: dict[str, tuple[Callable, int, int]] = {   # name: (function, least, most arguments)
     "sqrt": (_sqrt, 1, 1), "exp": (_exp, 1, 1), "log": (_log, 1, 1), "ln": (_log, 1, 1),
-    "log10": (_log10, 1, 1), "abs": (abs, 1, 1), "min": (min, 1, 64), "max": (max, 1, 64),
+    "log10": (_log10, 1, 1), "abs": (abs, 1, 1), "min": (lambda *a: min(a), 1, 64),
+    "max": (lambda *a: max(a), 1, 64),
     "pow": (_pow, 2, 2), "pwr": (_pow, 2, 2), "sin": (math.sin, 1, 1), "cos": (math.cos, 1, 1),
     "tan": (math.tan, 1, 1), "atan": (math.atan, 1, 1), "floor": (math.floor, 1, 1),
     "ceil": (math.ceil, 1, 1), "int": (math.trunc, 1, 1), "sgn": (lambda x: (x > 0) - (x < 0), 1, 1),

@@ -208,6 +208,14 @@ def _simple_tokens(line: str, start: int, path: str, line_number: int) -> list[W
 def _simple_tokens_card(tokens: list[Word]) -> Card | None:
     if not tokens:
         return None
+    level = 0
+    for t in tokens:                       # deep calls go to the grammar, which refuses them
+        if t.text == "(":
+            level += 1
+            if level > MAX_NESTING:
+                return None
+        elif t.text == ")":
+            level -= 1
     head = tokens[0]
     head_text = head.text
     if head_text[0] == ".":
@@ -351,9 +359,51 @@ def read_text(text: str, path: str, has_title: bool = True) -> ParsedFile:
     return ParsedFile(path, title, cards, lines)
 
 
+MAX_NESTING = 64         # parentheses in one card, outside braces and quotes
+
+
+def _too_deep(text: str) -> tuple[int, int] | None:
+    """(line, column) of the first '(' nested deeper than MAX_NESTING, outside braces,
+    quotes and comments, or None. The grammar's tree is walked recursively, so a card
+    nested thousands deep would exhaust Python's stack."""
+    level = braces = 0
+    quote = None
+    line, col = 1, 0
+    in_comment = False
+    for ch in text:
+        col += 1
+        if ch == "\n":
+            line, col, in_comment, quote = line + 1, 0, False, None
+            continue
+        if in_comment:
+            continue
+        if quote is not None:
+            if ch == quote:
+                quote = None
+        elif ch in "'\"" and not braces:
+            quote = ch
+        elif ch == ";" and not braces:
+            in_comment = True
+        elif ch == "{":
+            braces += 1
+        elif ch == "}":
+            braces = max(braces - 1, 0)
+        elif not braces and ch == "(":
+            level += 1
+            if level > MAX_NESTING:
+                return line, col
+        elif not braces and ch == ")":
+            level = max(level - 1, 0)
+    return None
+
+
 def parse_card(text: str, path: str, line_offset: int) -> Card:
     """One card's text (its continuation lines included) through the grammar."""
     from lark.exceptions import UnexpectedInput
+    deep = _too_deep(text) if text.count("(") > MAX_NESTING else None
+    if deep is not None:
+        raise InputError(Location(path, deep[0] + line_offset, deep[1]),
+                         f"parentheses nested deeper than {MAX_NESTING} levels")
     try:
         tree = netlist_parser().parse(text, start="card")
     except UnexpectedInput as error:
@@ -418,6 +468,8 @@ def _syntax_error(error, text: str, path: str, line_offset: int) -> InputError:
             return InputError(where, f"unexpected white space {raw[0]!r} (only spaces and tabs "
                               "separate fields)")
         shown = raw.strip() or token.type
+        if len(shown) > 40:                    # a hostile token is not echoed whole
+            shown = shown[:40] + "..."
         if shown == ")":
             return InputError(where, "')' with no '(' before it")
         if shown == "=":

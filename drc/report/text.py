@@ -137,6 +137,9 @@ def _first_line(finding: dict, paint) -> str:
     return f"{path}:{line}:{column}: {label}: {finding.get('message', '')} {rule}"
 
 
+QUOTE_WIDTH = 120
+
+
 def _quote(finding: dict, sources: dict[str, list[str]], paint) -> list[str]:
     """The source line under a line-number gutter, and a run of ^ under the element's name."""
     path, line, column = _where(finding)
@@ -147,6 +150,14 @@ def _quote(finding: dict, sources: dict[str, list[str]], paint) -> list[str]:
         return []
     text = lines[line - 1].rstrip("\r\n")
     start = min(column - 1, len(text))
+    # a long line is quoted as a window around the element, so the report stays linear in
+    # the input however wide a card is
+    if len(text) > QUOTE_WIDTH:
+        left = max(start - QUOTE_WIDTH // 3, 0)
+        right = min(left + QUOTE_WIDTH, len(text))
+        head = "…" if left > 0 else ""
+        text = head + text[left:right] + ("…" if right < len(text) else "")
+        start = start - left + len(head)
     end = start
     while end < len(text) and not text[end].isspace():
         end += 1
