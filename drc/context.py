@@ -696,7 +696,8 @@ def _guard_limits(limits: "Limits", reader: "_Reader", explicit, errors: "_Error
     """Limits bound untrusted input, so only the --config file (the checking side's own) may
     loosen them. A file found beside or above the netlist (drc.toml, STEM.toml, pyproject)
     comes with the netlist and may only tighten them: no more elements, bytes or time than
-    the defaults, and include folders only inside that file's own folder tree."""
+    the defaults, and include folders only inside the folder drc runs in (in CI, the
+    checkout: a pull request cannot point outside it)."""
     def trusted(key: str) -> bool:
         if key not in reader.table:
             return True
@@ -714,11 +715,11 @@ def _guard_limits(limits: "Limits", reader: "_Reader", explicit, errors: "_Error
     if not trusted("house_rule_time") and limits.house_rule_seconds > DEFAULT_HOUSE_RULE_SECONDS:
         refuse("house_rule_time", f"raises the limit above {DEFAULT_HOUSE_RULE_SECONDS:g} s")
     if not trusted("include_folders"):
-        home = Path(reader.at("include_folders").path).absolute().parent.resolve()
+        home = Path.cwd().resolve()
         for folder in limits.include_folders:
             real = Path(folder).resolve()
             if real != home and home not in real.parents:
-                refuse("include_folders", f"names {folder}, outside that file's folder")
+                refuse("include_folders", f"names {folder}, outside the folder drc runs in")
                 break
 
 
