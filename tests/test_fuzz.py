@@ -98,6 +98,15 @@ def test_built_netlists_never_crash(tmp_path_factory, text):
     assert_clean(path)
 
 
+def copy_models(sample: Path, folder: Path) -> None:
+    """The sample's include folder beside the copy, so its .include still resolves."""
+    models = sample.parent / "models"
+    if models.is_dir():
+        (folder / "models").mkdir()
+        for f in models.iterdir():
+            (folder / "models" / f.name).write_text(f.read_text())
+
+
 def mutate(text: str, rng: random.Random) -> str:
     lines = text.splitlines()
     for _ in range(rng.randint(1, 4)):
@@ -135,11 +144,7 @@ def test_mutated_samples_never_crash(tmp_path_factory, seed, which):
     # the sample's own config and includes come along, so the analysis runs too
     for f in sample.parent.glob(sample.stem + ".toml"):
         (folder / f.name).write_text(f.read_text())
-    models = sample.parent / "models"
-    if models.is_dir():
-        (folder / "models").mkdir()
-        for f in models.iterdir():
-            (folder / "models" / f.name).write_text(f.read_text())
+    copy_models(sample, folder)
     path = folder / sample.name
     path.write_text(mutate(sample.read_text(), random.Random(seed)))
     assert_clean(path)
@@ -268,11 +273,7 @@ KEYS = st.sampled_from([
 def test_configs_never_crash(tmp_path_factory, lines, which):
     sample = SAMPLES[which]
     folder = tmp_path_factory.mktemp("cfg")
-    models = sample.parent / "models"
-    if models.is_dir():
-        (folder / "models").mkdir()
-        for f in models.iterdir():
-            (folder / "models" / f.name).write_text(f.read_text())
+    copy_models(sample, folder)
     path = folder / sample.name
     path.write_text(sample.read_text())
     (folder / (sample.stem + ".toml")).write_text("\n".join(lines) + "\n", encoding="utf-8")
