@@ -696,8 +696,9 @@ def _guard_limits(limits: "Limits", reader: "_Reader", explicit, errors: "_Error
     """Limits bound untrusted input, so only the --config file (the checking side's own) may
     loosen them. A file found beside or above the netlist (drc.toml, STEM.toml, pyproject)
     comes with the netlist and may only tighten them: no more elements, bytes or time than
-    the defaults, and include folders only inside the folder drc runs in (in CI, the
-    checkout: a pull request cannot point outside it)."""
+    the defaults, and include folders only inside the repository that holds it (the nearest
+    folder above it with a `.git`: in CI, the checkout, so a pull request cannot point
+    outside it). Outside any repository the files are the user's own and are taken as given."""
     def trusted(key: str) -> bool:
         if key not in reader.table:
             return True
@@ -715,11 +716,12 @@ def _guard_limits(limits: "Limits", reader: "_Reader", explicit, errors: "_Error
     if not trusted("house_rule_time") and limits.house_rule_seconds > DEFAULT_HOUSE_RULE_SECONDS:
         refuse("house_rule_time", f"raises the limit above {DEFAULT_HOUSE_RULE_SECONDS:g} s")
     if not trusted("include_folders"):
-        home = Path.cwd().resolve()
-        for folder in limits.include_folders:
+        config = Path(reader.at("include_folders").path).absolute().resolve()
+        home = next((p for p in config.parents if (p / ".git").exists()), None)
+        for folder in limits.include_folders if home is not None else ():
             real = Path(folder).resolve()
             if real != home and home not in real.parents:
-                refuse("include_folders", f"names {folder}, outside the folder drc runs in")
+                refuse("include_folders", f"names {folder}, outside the repository at {home}")
                 break
 
 

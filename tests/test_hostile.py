@@ -149,6 +149,7 @@ def test_a_config_beside_the_netlist_cannot_loosen_the_limits(tree):
     """The netlist's own tree is untrusted: its drc.toml or STEM.toml may tighten the limits,
     never loosen them (more elements, bytes, time, or include folders outside its tree)."""
     project, secret = tree
+    (project / ".git").mkdir()          # a checkout, as CI has: its own tree is the boundary
     board = write(project / "board.cir", BOARD + f".include {secret}\n")
     for table in (f'include_folders = ["{secret.parent}"]', "max_elements = 2000000",
                   'max_file_bytes = "1 GiB"', 'house_rule_time = "1 h"'):
