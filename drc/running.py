@@ -10,8 +10,10 @@ The time limit (`[limits] house_rule_time`, default 10 s) is kept in-process:
   BaseException, so a rule's own `except Exception` cannot swallow it. The previous handler
   and timer are put back after each rule.
 * elsewhere (another thread, Windows): the rule runs in a daemon thread and the runner
-  waits at most the limit; a rule still running then is reported and abandoned (Python
-  cannot stop a thread), and its results, if it ever ends, are ignored.
+  waits at most the limit; a rule still running then is reported, and RuleOverran is raised
+  in its thread (CPython's PyThreadState_SetAsyncExc) so that it stops at its next bytecode;
+  one stuck in a single long C call is abandoned until that call returns, and its results,
+  if it ever ends, are ignored.
 
 Built-in rules run directly, with no limit: a fault in one is drc's own (exit status 3).
 """
@@ -176,6 +178,18 @@ def _with_alarm(call: Callable[[], list], seconds: float) -> list:
             signal.setitimer(signal.ITIMER_REAL, *earlier)
 
 
+def _stop_thread(worker: threading.Thread) -> bool:
+    """Ask an overrunning rule's thread to stop: CPython raises RuleOverran (a BaseException,
+    which a rule's own `except Exception` does not catch) in it at its next bytecode. A rule
+    stuck inside one long C call stops when that call returns. Without this, an abandoned
+    loop would hold the interpreter's lock and slow every other thread to a crawl."""
+    import ctypes
+    ctypes.pythonapi.PyThreadState_SetAsyncExc(ctypes.c_ulong(worker.ident),
+                                               ctypes.py_object(RuleOverran))
+    worker.join(1.0)
+    return not worker.is_alive()
+
+
 def _in_thread(call: Callable[[], list], seconds: float, rule: LoadedRule) -> list:
     box: dict[str, Any] = {}
 
@@ -191,7 +205,8 @@ def _in_thread(call: Callable[[], list], seconds: float, rule: LoadedRule) -> li
     if worker.is_alive():
         frame = sys._current_frames().get(worker.ident)
         stack = traceback.extract_stack(frame) if frame is not None else []
-        raise RuleFault(_line_in(stack, rule.path, rule.line), "")
+        stopped = _stop_thread(worker)
+        raise RuleFault(_line_in(stack, rule.path, rule.line), "" if not stopped else "stopped")
     if "error" in box:
         raise box["error"]
     return box["found"]
@@ -211,6 +226,9 @@ def run_isolated(rule: LoadedRule, design, settings, seconds: float) -> list[Fin
         line = _line_in(traceback.extract_tb(stop.__traceback__), rule.path, rule.line)
         raise RuleFault(line, f"ran past its time limit of {seconds:g} s") from None
     except RuleFault as fault:
+        if fault.message == "stopped":
+            raise RuleFault(fault.line, f"ran past its time limit of {seconds:g} s "
+                                        "(stopped in its thread)") from None
         if not fault.message:
             raise RuleFault(fault.line, f"ran past its time limit of {seconds:g} s "
                                         "(abandoned, still running)") from None
