@@ -133,13 +133,9 @@ def series_resistor_advice(design: Design, branch: Branch, led: Led, goal: str =
 def rerun_pump(design: Design, pump, **changes):
     """The pump's model result with changes (series_ohm={pin: ohm}, capacitor_scale={key: x},
     diode_override={key: DiodeParams}), at every corner; the start-up in its quick form."""
-    from drc.pumps import expand_result, simulate
-    region = pump.region
-    labels = {r.label for r in region.rails} | {p.supply for p in region.pins if p.supply}
-    sel, inverse = design.corners.reduce(sorted(labels), capacitors=True)
-    result = simulate(region, design.corners.subset(sel), lambda e: diode_params(design.flat, e),
-                      fast=True, sel=sel, **changes)
-    return expand_result(result, inverse)
+    from drc.pumps import solve_on_own_corners
+    return solve_on_own_corners(pump.region, design.corners,
+                                lambda e: diode_params(design.flat, e), **changes)
 
 
 # A small Schottky for fixes that suggest one (from memory: about 0.3 V at 1 mA).
@@ -167,10 +163,6 @@ def flicker_of_branch(design: Design, branch: Branch, led: Led):
     if not pins or not branch.phases:
         return None
     n = design.corners.nominal
-    currents = []
-    for phase in branch.phases:
-        if branch.network is None:
-            currents.append(phase.share)
     lit = branch.peak_current_A.get(led.name)
     average = branch.current_A.get(led.name)
     if lit is None or average is None or lit[n] <= 0:

@@ -578,7 +578,7 @@ def _configured_supply(flat: FlatDesign, spec: SupplySpec, assumptions: _Assumpt
                   spec.package_current_A)
 
 
-def _pulse_timing(e: Element) -> tuple[float, float, float, float]:
+def _pulse_timing(e: Element) -> tuple[float, float, float, float, float]:
     """(high level, low level, frequency, duty, start) of a PULSE source: v1 v2 td tr tf pw per."""
     args = list(e.source.waveform.args) + [0.0] * 7
     v1, v2, td, tr, tf, pw, per = args[:7]
@@ -922,17 +922,13 @@ def _pump_branch(branch, r_nets, r_elements, region_leds, pin_nets, rail_nets, t
 
 
 def _solve_pump_branch(b: Branch, corners: Corners, flat: FlatDesign) -> None:
-    from drc.pumps import expand_result, simulate
+    from drc.pumps import solve_on_own_corners
     region = b.pump_region
-    labels = {r.label for r in region.rails} | {p.supply for p in region.pins if p.supply}
-    sel, inverse = corners.reduce(sorted(labels), capacitors=True)
-    region.corner_sel = sel
     try:
-        result = simulate(region, corners.subset(sel), lambda e: diode_params(flat, e), fast=True, sel=sel)
+        result = solve_on_own_corners(region, corners, lambda e: diode_params(flat, e))
     except (ValueError, FloatingPointError, np.linalg.LinAlgError) as error:
         b.note = f"{b.id}: the pump model could not solve this circuit ({error})"
         return
-    result = expand_result(result, inverse)
     region.result = result
     load = region.leds[0]
     name = load.name
@@ -1167,6 +1163,24 @@ def solve_branch(b: Branch, corners: Corners, flat: FlatDesign) -> None:
     b.pin_current_A = {p.label: pin_total for p in (b.pin, b.sink_pin) if p is not None}
 
 
+class _LedTally:
+    """Per LED over the phases of its drive: the share-weighted average current, the peak,
+    the forward voltage in the brightest phase, and the greatest reverse voltage."""
+
+    def __init__(self, names, count: int):
+        self.average = {n: np.zeros(count) for n in names}
+        self.peak = {n: np.zeros(count) for n in names}
+        self.forward = {n: np.zeros(count) for n in names}
+        self.reverse = {n: np.zeros(count) for n in names}
+
+    def add(self, name: str, share: float, current, forward_V, reverse_V) -> None:
+        i = np.maximum(current, 0.0)
+        self.average[name] += share * i
+        self.forward[name] = np.where(i > self.peak[name], forward_V, self.forward[name])
+        self.peak[name] = np.maximum(self.peak[name], i)
+        self.reverse[name] = np.maximum(self.reverse[name], reverse_V)
+
+
 def _solve_merged(drive_V, resistance, stages, t):
     """solve_string, with identical diodes in parallel taken as one of k times the area
     (exact: they share the stage's voltage and split its current evenly)."""
@@ -1200,10 +1214,7 @@ def _solve_merged(drive_V, resistance, stages, t):
 def _solve_string_phases(b: Branch, corners: Corners, stages, led_params, t):
     """Per LED (in string order): (average, peak, forward, reverse); the lit phase; the
     string's peak current (what its pins carry)."""
-    average = {l.name: np.zeros(corners.count) for l in b.leds}
-    peak = {l.name: np.zeros(corners.count) for l in b.leds}
-    forward = {l.name: np.zeros(corners.count) for l in b.leds}
-    reverse = {l.name: np.zeros(corners.count) for l in b.leds}
+    tally = _LedTally([l.name for l in b.leds], corners.count)
     pin_total = np.zeros(corners.count)
     lit_phase = 0
     best_share_current = -1.0
@@ -1215,24 +1226,20 @@ def _solve_string_phases(b: Branch, corners: Corners, stages, led_params, t):
             for di, d in enumerate(st):
                 if d.key not in led_params:
                     continue
-                name = d.name
-                i = np.maximum(sol.diode_current_A[si][di], 0.0)
-                average[name] += phase.share * i
-                brighter = i > peak[name]
-                forward[name] = np.where(brighter, sol.forward_V[si][di], forward[name])
-                peak[name] = np.maximum(peak[name], i)
-                reverse[name] = np.maximum(reverse[name], -np.minimum(phase.drive_V, 0.0))
+                tally.add(d.name, phase.share, sol.diode_current_A[si][di], sol.forward_V[si][di],
+                          -np.minimum(phase.drive_V, 0.0))
         nominal_current = float(total[corners.nominal])
         if nominal_current > best_share_current:
             best_share_current = nominal_current
             lit_phase = index
         pin_total = np.maximum(pin_total, total)
     if b.reversed:
-        for name in average:
-            average[name][:] = 0.0
-            peak[name][:] = 0.0
+        for name in tally.average:
+            tally.average[name][:] = 0.0
+            tally.peak[name][:] = 0.0
     names = [d.name for st in b.stages for d in st if d.key in led_params]
-    return ([(average[n], peak[n], forward[n], reverse[n]) for n in names], lit_phase, pin_total)
+    return ([(tally.average[n], tally.peak[n], tally.forward[n], tally.reverse[n]) for n in names],
+            lit_phase, pin_total)
 
 
 def _network_key(b: Branch, corners: Corners, flat: FlatDesign):
@@ -1298,10 +1305,7 @@ def _solve_network_phases(b: Branch, corners: Corners, flat: FlatDesign) -> None
             diodes.append((x.nodes[0], x.nodes[1], params))
             names.append(x)
     b.series_resistance_ohm = np.full(count, sum((x.value or 0.0) for x in b.resistors)) * corners.resistor_factor
-    average = {l.name: np.zeros(count) for l in b.leds}
-    peak = {l.name: np.zeros(count) for l in b.leds}
-    forward = {l.name: np.zeros(count) for l in b.leds}
-    reverse = {l.name: np.zeros(count) for l in b.leds}
+    tally = _LedTally([l.name for l in b.leds], count)
     pin_peak: dict[str, np.ndarray] = {}
     touched = {n for x in region.elements for n in x.nodes}
     best = -1.0
@@ -1338,14 +1342,8 @@ def _solve_network_phases(b: Branch, corners: Corners, flat: FlatDesign) -> None
         for x, i in zip(names, currents):
             if x.key not in led_keys:
                 continue
-            name = x.name
-            i = np.maximum(i, 0.0)
             vf = v_of(x.nodes[0]) - v_of(x.nodes[1])
-            average[name] += phase.share * i
-            brighter = i > peak[name]
-            forward[name] = np.where(brighter, vf, forward[name])
-            peak[name] = np.maximum(peak[name], i)
-            reverse[name] = np.maximum(reverse[name], -np.minimum(vf, 0.0))
+            tally.add(x.name, phase.share, i, vf, -np.minimum(vf, 0.0))
         total = sum(np.maximum(i, 0.0) for x, i in zip(names, currents) if x.key in led_keys)
         if float(np.asarray(total)[corners.nominal]) > best:
             best = float(np.asarray(total)[corners.nominal])
@@ -1353,7 +1351,8 @@ def _solve_network_phases(b: Branch, corners: Corners, flat: FlatDesign) -> None
         for pin, (src, net, ohm) in zip(b.network_pins, links):
             drawn = np.abs(v_of(src) - v_of(net)) / ohm
             pin_peak[pin.label] = np.maximum(pin_peak.get(pin.label, np.zeros(count)), drawn)
-    b.current_A, b.peak_current_A, b.forward_V, b.reverse_V = average, peak, forward, reverse
+    b.current_A, b.peak_current_A = tally.average, tally.peak
+    b.forward_V, b.reverse_V = tally.forward, tally.reverse
     b.pin_current_A = pin_peak
 
 

@@ -66,7 +66,7 @@ class FileResult:
     anchors: list[set] = field(default_factory=list)   # per finding: (path, line) cards
 
 
-def check_file(path: str, config: str | None, rules: list[LoadedRule], extra_folders=()) -> FileResult:
+def check_file(path: str, config: str | None, rules: list[LoadedRule]) -> FileResult:
     """Everything about one netlist; InputError(s) when it cannot be read."""
     rule_ids = [r.id for r in rules]
     context = load_context(Path(path), Path(config) if config else None, rule_ids=None)

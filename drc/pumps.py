@@ -218,6 +218,15 @@ def expand_result(result, inverse):
     return out
 
 
+def solve_on_own_corners(region: PumpRegion, corners, diode_params, **changes):
+    """The periodic model on the corners of the region's own rails only, its per-corner
+    figures spread back over every corner (the start-up in its quick, linearised form)."""
+    labels = {r.label for r in region.rails} | {p.supply for p in region.pins if p.supply}
+    sel, inverse = corners.reduce(sorted(labels), capacitors=True)
+    result = simulate(region, corners.subset(sel), diode_params, fast=True, sel=sel, **changes)
+    return expand_result(result, inverse)
+
+
 def simulate(region: PumpRegion, corners, diode_params, fast: bool = False, **changes):
     """Run the periodic model on a region; the first LED is the load. Identical pump cells
     (the same parts, values and drive under other names) are simulated once."""
