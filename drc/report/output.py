@@ -12,7 +12,8 @@ def write_atomic(path: str, text: str) -> None:
     """Write text (UTF-8) to path through a temporary file in the same folder and os.replace.
 
     A failure leaves any existing file at path as it was and no temporary file behind; it
-    raises InputError "cannot write PATH: REASON" located at the path.
+    raises InputError "cannot write PATH: REASON" located at the path. A target that exists
+    but is not a regular file (a device such as /dev/null, a FIFO) is written in place.
     """
     path = os.fspath(path)
     folder = os.path.dirname(os.path.abspath(path))
@@ -23,6 +24,9 @@ def write_atomic(path: str, text: str) -> None:
         data = text.encode("utf-8")
     except UnicodeError as error:
         raise InputError(location_of_path(path), f"cannot write {path}: {error}") from None
+    if os.path.exists(path) and not (os.path.isfile(path) or os.path.isdir(path)):
+        _write_through(path, data)
+        return
     temporary = os.path.join(folder, f".{os.path.basename(path)}.{secrets.token_hex(6)}.tmp")
     try:
         # 0o666 less the umask, as a plain open() would give the report.
@@ -42,6 +46,21 @@ def write_atomic(path: str, text: str) -> None:
         except BaseException:
             _remove(temporary)
             raise
+    except OSError as error:
+        reason = error.strerror or str(error)
+        raise InputError(location_of_path(path), f"cannot write {path}: {reason}") from None
+
+
+def _write_through(path: str, data: bytes) -> None:
+    """Write to a target that is not a regular file (/dev/null, a FIFO, a terminal) in place.
+
+    Renaming a temporary file over it would replace the device or pipe with a plain file
+    (`--output /dev/null` would turn /dev/null into a 32 MB file), and "whole or not at all"
+    means nothing for a stream anyway.
+    """
+    try:
+        with open(path, "wb") as stream:
+            stream.write(data)
     except OSError as error:
         reason = error.strerror or str(error)
         raise InputError(location_of_path(path), f"cannot write {path}: {reason}") from None
