@@ -4,6 +4,7 @@ expand it, analyse it and run every rule; then gather the report the formatters 
 from __future__ import annotations
 
 import difflib
+import math
 import os
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -16,6 +17,7 @@ from drc.context import Context, load_context
 from drc.errors import InputError, InputErrors, Location
 from drc.expand import Limits, expand
 from drc.registry import LoadedRule, load_rules
+from drc.report.jsonreport import BRANCH_KEYS, PUMP_KEYS, fingerprint, in_key_order, plain
 from drc.running import run_rules
 
 NETLIST_PATTERNS = ("*.cir", "*.sp", "*.net", "*.spice")
@@ -93,50 +95,71 @@ def _inputs(design: Design, context: Context) -> dict:
 
 
 def _branch_json(b, design: Design) -> list[dict]:
+    """The report's entries for one branch, one per LED, made in their final JSON form: the
+    contract's keys in order, then the others sorted, every value plain (see
+    drc.report.jsonreport._is_final), so the JSON report writes them as they are."""
     n = design.corners.nominal
+    elements = [e.name for e in b.elements]
+    if b.drive == "pin" and b.pin is not None:
+        elements = [b.pin.source or b.pin.label] + elements
+    string = [l.name for l in b.leds] if len(b.leds) > 1 else None
     out = []
     for led in b.leds:
         entry = {"led": led.name, "drive": b.drive, "source": b.source,
-                 "elements": [e.name for e in b.elements] if b.drive != "pin" or b.pin is None
-                 else [b.pin.source or b.pin.label] + [e.name for e in b.elements],
-                 "colour": led.colour}
+                 "elements": list(elements)}
         if b.current_A:
-            entry["current_A"] = low_nominal_high(b.current_A[led.name], n)
-            entry["forward_V"] = low_nominal_high(b.forward_V[led.name], n)
+            entry["current_A"] = _spread(b.current_A[led.name], n)
+            entry["forward_V"] = _spread(b.forward_V[led.name], n)
         else:
             entry["current_A"] = None
             entry["forward_V"] = None
-        entry["nets"] = b.nets
-        if len(b.leds) > 1:
-            entry["string"] = [l.name for l in b.leds]
+        entry["colour"] = led.colour           # the rest in sorted order
+        entry["nets"] = list(b.nets)
         if b.note:
             entry["note"] = b.note
+        if string is not None:
+            entry["string"] = list(string)
         out.append(entry)
     return out
 
 
+def _spread(values, nominal: int) -> dict:
+    """The contract's {low, nominal, high} of a per-corner array, as analysis.low_nominal_high
+    gives it, with a NaN or infinity as None (JSON's null), as the report writes it."""
+    return {"low": _finite(float(values.min())), "nominal": _finite(float(values[nominal])),
+            "high": _finite(float(values.max()))}
+
+
+def _finite(x: float) -> float | None:
+    return x if math.isfinite(x) else None
+
+
 def _pump_json(p, design: Design) -> dict:
+    """The report's entry for one pump, in its final JSON form (as _branch_json's)."""
     n = design.corners.nominal
     entry = {"id": p.id, "topology": p.topology, "stages": p.stages,
-             "elements": [e.name for e in p.elements], "output_net": p.output_net,
-             "pins": p.pins}
+             "elements": [e.name for e in p.elements], "output_net": p.output_net}
     r = p.result
     if r is None:
         entry["note"] = (p.region.note if p.region is not None and p.region.note else
                          "not solved: see the branch's note")
+        entry["pins"] = plain(p.pins)
         return entry
-    entry["peak_V"] = low_nominal_high(r.peak_V, n)
-    entry["average_V"] = low_nominal_high(r.average_V, n)
-    entry["ripple_V"] = low_nominal_high(r.ripple_V, n)
-    led = p.region.leds[0]
+    entry["peak_V"] = _spread(r.peak_V, n)
+    entry["average_V"] = _spread(r.average_V, n)
+    led = p.region.leds[0]                  # the rest in sorted order
     entry["led"] = led.name
-    entry["led_current_A"] = low_nominal_high(r.load_average_A, n)
-    entry["led_peak_A"] = low_nominal_high(r.load_peak_A, n)
-    entry["time_to_visible_s"] = low_nominal_high(r.time_to_visible_s, n)
-    entry["pin_currents"] = {label: {"high_phase_peak_A": low_nominal_high(r.pin_high_peak_A[label], n),
-                                     "low_phase_peak_A": low_nominal_high(r.pin_low_peak_A[label], n),
-                                     "startup_surge_A": low_nominal_high(r.startup_surge_A[label], n)}
-                             for label in p.pins if label in r.pin_high_peak_A}
+    entry["led_current_A"] = _spread(r.load_average_A, n)
+    entry["led_peak_A"] = _spread(r.load_peak_A, n)
+    # not a spread key: every dict inside is sorted, as plain() sorts it
+    entry["pin_currents"] = plain(
+        {label: {"high_phase_peak_A": low_nominal_high(r.pin_high_peak_A[label], n),
+                 "low_phase_peak_A": low_nominal_high(r.pin_low_peak_A[label], n),
+                 "startup_surge_A": low_nominal_high(r.startup_surge_A[label], n)}
+         for label in p.pins if label in r.pin_high_peak_A})
+    entry["pins"] = plain(p.pins)
+    entry["ripple_V"] = _spread(r.ripple_V, n)
+    entry["time_to_visible_s"] = _spread(r.time_to_visible_s, n)
     return entry
 
 
@@ -167,7 +190,6 @@ def run_check(paths: list[str], config: str | None, rule_folders: list[str], *, 
     import datetime as _dt
     from drc import waivers as _waivers
     from drc.baseline import apply_baseline, load_baseline
-    from drc.report.jsonreport import fingerprint
 
     files = find_netlists(paths)
     rules, failures = load_rules([Path(f) for f in rule_folders])
@@ -209,9 +231,10 @@ def run_check(paths: list[str], config: str | None, rule_folders: list[str], *, 
         for b in r.branches:
             for entry in b:
                 if multiple:
-                    entry = {"path": r.path, **entry}
+                    entry = in_key_order({"path": r.path, **entry}, BRANCH_KEYS)
                 branches.append(entry)
-        pumps.extend(({"path": r.path, **p} if multiple else p) for p in r.pumps)
+        pumps.extend((in_key_order({"path": r.path, **p}, PUMP_KEYS) if multiple else p)
+                     for p in r.pumps)
         findings.extend(r.findings)
         anchors.extend(r.anchors)
         sources.update(r.sources)
@@ -229,12 +252,16 @@ def run_check(paths: list[str], config: str | None, rule_folders: list[str], *, 
                          "elements": [], "nets": [], "corner": None, "values": {},
                          "fix": "fix the rule module; the other rules ran", "caution": ""})
         anchors.append({(failure.path, failure.line)})
-    findings.extend(_waivers.apply_waivers(findings, anchors, inline + file_waivers,
-                                           today or _dt.date.today()))
-    findings.sort(key=lambda f: (f["location"]["path"], f["location"]["line"],
-                                 f["location"]["column"], f["rule"], f["message"]))
+    # each finding's fingerprint once, before a waiver is added: its place in the key order
     for f in findings:
         f["fingerprint"] = fingerprint(f)
+    notes = _waivers.apply_waivers(findings, anchors, inline + file_waivers,
+                                   today or _dt.date.today())
+    for f in notes:
+        f["fingerprint"] = fingerprint(f)
+    findings.extend(notes)
+    findings.sort(key=lambda f: (f["location"]["path"], f["location"]["line"],
+                                 f["location"]["column"], f["rule"], f["message"]))
     if known is not None:
         apply_baseline(findings, known)
     summary = {s: sum(1 for f in findings if f["severity"] == s) for s in SEVERITIES}
@@ -247,16 +274,22 @@ def run_check(paths: list[str], config: str | None, rule_folders: list[str], *, 
 def _slim(result: FileResult) -> FileResult:
     """What the report needs from one file, as plain picklable data: findings as JSON dicts,
     each with the cards it can be waived at, and no Design."""
+    from drc.waivers import mentions_waiver
     design = result.design
     by_key = design.flat.by_key if design is not None else {}
+    # The X lines a finding came through matter only to a drc-waive comment, and such a
+    # comment can only name a card of the files this netlist read: without one, each
+    # finding's own card is all its anchors need to hold.
+    through = mentions_waiver(result.sources)
     anchors = []
     for f in result.findings:
         where = {(f.location.path, f.location.line)}
-        named = [e for e in (by_key.get(n.lower()) for n in f.elements) if e is not None]
-        # the element whose card the finding points at, and the X lines it came through
-        at = [e for e in named if e.location == f.location] or named[:1]
-        for e in at:
-            where.update((i.path, i.line) for i in e.instances)
+        if through:
+            named = [e for e in (by_key.get(n.lower()) for n in f.elements) if e is not None]
+            # the element whose card the finding points at, and the X lines it came through
+            at = [e for e in named if e.location == f.location] or named[:1]
+            for e in at:
+                where.update((i.path, i.line) for i in e.instances)
         anchors.append(where)
     slim = FileResult(result.path, None, [_finding_json(f) for f in result.findings],
                       result.inputs, list(result.assumptions), result.cautions, result.branches,
@@ -316,12 +349,15 @@ def _check_all(files, config, rule_folders, rules, jobs, progress):
 
 
 def _finding_json(f: Finding) -> dict:
+    """A finding as the report's dict, in its final JSON form but for the fingerprint (added
+    by run_check): the contract's keys in order and every value plain, the corner and values
+    with sorted keys, as the JSON report writes them."""
+    values = {k: (float(v) if isinstance(v, (int, float)) or hasattr(v, "item") else v)
+              for k, v in f.values.items()}
     return {"rule": f.rule, "severity": f.severity, "message": f.message,
             "location": {"path": f.location.path, "line": f.location.line, "column": f.location.column},
-            "elements": list(f.elements), "nets": list(f.nets), "corner": f.corner,
-            "values": {k: (float(v) if isinstance(v, (int, float)) or hasattr(v, "item") else v)
-                       for k, v in f.values.items()},
-            "fix": f.fix, "caution": f.caution}
+            "elements": list(f.elements), "nets": list(f.nets), "corner": plain(f.corner),
+            "values": plain(values), "fix": f.fix, "caution": f.caution}
 
 
 def rule_metadata(rules: list[LoadedRule]) -> list[dict]:

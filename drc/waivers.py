@@ -124,6 +124,12 @@ def _target(lines: list[str], index: int) -> int | None:
     return j + 1
 
 
+def mentions_waiver(sources: dict[str, list[str]]) -> bool:
+    """True when any line of the files read holds the waiver word (in any case), as
+    inline_waivers looks for it: without one, there is no inline waiver to match."""
+    return any(WORD in "\n".join(lines).lower() for lines in sources.values())
+
+
 def inline_waivers(sources: dict[str, list[str]], known_rules: set[str],
                    top_files: set[str] = frozenset()) -> list[Waiver]:
     """Every `drc-waive` comment in the files read; InputErrors for the malformed ones."""

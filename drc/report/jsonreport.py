@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import functools
 import hashlib
 import json
 import math
@@ -23,8 +24,8 @@ _FINDING_KEYS = ("rule", "severity", "message", "location", "elements", "nets", 
                  "baseline")
 _LOCATION_KEYS = ("path", "line", "column")
 _WAIVER_KEYS = ("reason", "source", "expires", "at")
-_BRANCH_KEYS = ("led", "drive", "source", "elements", "current_A", "forward_V")
-_PUMP_KEYS = ("id", "topology", "stages", "elements", "output_net", "peak_V", "average_V")
+BRANCH_KEYS = ("led", "drive", "source", "elements", "current_A", "forward_V")
+PUMP_KEYS = ("id", "topology", "stages", "elements", "output_net", "peak_V", "average_V")
 _SPREAD_KEYS = ("low", "nominal", "high")
 _SUMMARY_KEYS = ("error", "warning", "note", "waived", "known")
 
@@ -36,18 +37,29 @@ def fingerprint(finding: dict) -> str:
     and leaves out line, column and message, so moving lines or a changed number keeps it.
     """
     location = finding.get("location") or {}
-    path = str(location.get("path", "")).replace("\\", "/")
-    if path:
-        path = posixpath.normpath(path)       # "./a/b.cir" and "a/b.cir" are one file
     key = [
         str(finding.get("rule", "")),
-        path,
+        _fingerprint_path(str(location.get("path", ""))),
         sorted(str(name).lower() for name in finding.get("elements") or ()),
         sorted(str(name).lower() for name in finding.get("nets") or ()),
     ]
     # JSON of a list keeps field boundaries unambiguous ("a","bc" differs from "ab","c").
-    text = json.dumps(key, ensure_ascii=True, separators=(",", ":"))
+    text = _KEY_JSON(key)
     return hashlib.sha256(text.encode("utf-8")).hexdigest()[:32]
+
+
+# The fingerprint's JSON, as json.dumps(key, ensure_ascii=True, separators=(",", ":")) writes
+# it; one encoder made once, not one per finding.
+_KEY_JSON = json.JSONEncoder(ensure_ascii=True, separators=(",", ":")).encode
+
+
+@functools.lru_cache(maxsize=1024)
+def _fingerprint_path(path: str) -> str:
+    """The path as the fingerprint holds it: forward slashes, and "./a/b.cir" and "a/b.cir"
+    as one file. A pure function of the text, remembered because a report has many findings
+    in few files."""
+    path = path.replace("\\", "/")
+    return posixpath.normpath(path) if path else path
 
 
 def is_waived(finding: dict) -> bool:
@@ -103,7 +115,8 @@ def prepare(report: dict) -> dict:
     findings = []
     for finding in report.get("findings") or ():
         finding = dict(finding)
-        finding.setdefault("fingerprint", fingerprint(finding))
+        if "fingerprint" not in finding:        # the engine's findings carry theirs
+            finding["fingerprint"] = fingerprint(finding)
         findings.append(finding)
     prepared = dict(report)
     prepared["findings"] = findings
@@ -115,21 +128,129 @@ def prepare(report: dict) -> dict:
 
 def render_json(report: dict) -> str:
     """The report as JSON text: contract key order, indent 2, trailing newline, byte-stable."""
-    ordered = _ordered(prepare(report), _TOP_KEYS, _top_children)
-    # indented for a person up to a few thousand entries; past that, Python's C encoder
-    # (which only writes unindented JSON) keeps a whole board's report fast
-    size = len(ordered.get("findings") or ()) + len(ordered.get("branches") or ())
-    if size <= LARGE_REPORT:
-        return json.dumps(ordered, indent=2, ensure_ascii=False, allow_nan=False) + "\n"
-    return json.dumps(ordered, ensure_ascii=False, allow_nan=False, separators=(",", ":")) + "\n"
+    prepared = prepare(report)
+    try:
+        return _json_text(_ordered(prepared, _TOP_KEYS, _top_children, reuse=True))
+    except ValueError:
+        # a NaN or infinity in an entry taken as it was (JSON has none): the full walk
+        # writes it as null, as plain() does everywhere
+        return _json_text(_ordered(prepared, _TOP_KEYS, _top_children, reuse=False))
 
 
 LARGE_REPORT = 5000
 
 
+def _json_text(ordered: dict) -> str:
+    # indented for a person up to a few thousand entries; past that, Python's C encoder
+    # (which only writes unindented JSON) keeps a whole board's report fast
+    size = len(ordered.get("findings") or ()) + len(ordered.get("branches") or ())
+    if size <= LARGE_REPORT:
+        return indented_json(ordered) + "\n"
+    return json.dumps(ordered, ensure_ascii=False, allow_nan=False, separators=(",", ":")) + "\n"
+
+
+def indented_json(value: Any) -> str:
+    """json.dumps(value, indent=2, ensure_ascii=False, allow_nan=False), the same text made
+    several times faster for a big report (the standard library writes indented JSON in
+    Python, through a generator per nesting level).
+
+    It follows json's encoder rule for rule: what each type is written as, which keys are
+    allowed (and how non-str ones are written), the separators "," and ": ", and "[]" and
+    "{}" for empty ones; NaN and infinities raise ValueError, other types TypeError. The one
+    difference: a value that contains itself ends in RecursionError, not ValueError.
+    """
+    out: list[str] = []
+    _write_indented(value, "\n", out)
+    return "".join(out)
+
+
+def _write_indented(value: Any, pad: str, out: list[str]) -> None:
+    """value appended to out as indented JSON; pad is a newline and the current indent."""
+    if isinstance(value, str):
+        out.append(_encode_str(value))
+    elif value is None:
+        out.append("null")
+    elif value is True:
+        out.append("true")
+    elif value is False:
+        out.append("false")
+    elif isinstance(value, int):
+        out.append(int.__repr__(value))
+    elif isinstance(value, float):
+        out.append(_float_text(value))
+    elif isinstance(value, (list, tuple)):
+        if not value:
+            out.append("[]")
+            return
+        inner = pad + "  "
+        lead = "[" + inner
+        for item in value:
+            kind = type(item)
+            if kind is str:                 # the common leaves inline, the rest recursively
+                out.append(lead + _encode_str(item))
+            elif kind is int:
+                out.append(lead + int.__repr__(item))
+            else:
+                out.append(lead)
+                _write_indented(item, inner, out)
+            lead = "," + inner
+        out.append(pad + "]")
+    elif isinstance(value, dict):
+        if not value:
+            out.append("{}")
+            return
+        inner = pad + "  "
+        lead = "{" + inner
+        for key, item in value.items():
+            head = lead + _encode_str(_key_text(key)) + ": "
+            kind = type(item)
+            if kind is str:
+                out.append(head + _encode_str(item))
+            elif kind is int:
+                out.append(head + int.__repr__(item))
+            else:
+                out.append(head)
+                _write_indented(item, inner, out)
+            lead = "," + inner
+        out.append(pad + "}")
+    else:
+        raise TypeError(f"Object of type {value.__class__.__name__} is not JSON serializable")
+
+
+_encode_str = json.encoder.encode_basestring      # what ensure_ascii=False writes strings with
+
+
+def _float_text(value: float) -> str:
+    if value != value or value in (math.inf, -math.inf):
+        raise ValueError("Out of range float values are not JSON compliant: " + repr(value))
+    return float.__repr__(value)
+
+
+def _key_text(key: Any) -> str:
+    """A dict key as json writes it: str as it is; float, bool, None and int as JSON text."""
+    if isinstance(key, str):
+        return key
+    if isinstance(key, float):
+        return _float_text(key)
+    if key is True:
+        return "true"
+    if key is False:
+        return "false"
+    if key is None:
+        return "null"
+    if isinstance(key, int):
+        return int.__repr__(key)
+    raise TypeError(f"keys must be str, int, float, bool or None, not {key.__class__.__name__}")
+
+
 def plain(value: Any) -> Any:
     """A value as plain JSON data: numpy scalars to Python numbers, tuples to lists,
     non-finite floats to null (JSON has no NaN), dicts of unnamed keys sorted."""
+    kind = type(value)
+    if kind is str or kind is int or kind is bool or value is None:
+        return value                    # the common leaves first, as they are
+    if kind is float:
+        return value if math.isfinite(value) else None
     if isinstance(value, dict):
         return {str(key): plain(value[key]) for key in sorted(value, key=str)}
     if isinstance(value, (list, tuple)):
@@ -148,11 +269,16 @@ def plain(value: Any) -> Any:
     return str(value)
 
 
-def _ordered(obj: Any, keys: tuple[str, ...], children=None) -> Any:
-    """A dict with the named keys first, in order, then the others sorted; values made plain."""
+def _ordered(obj: Any, keys: tuple[str, ...], children=None, reuse: bool = False) -> Any:
+    """A dict with the named keys first, in order, then the others sorted; values made plain.
+
+    With reuse, an entry of a list (a finding, a branch, a pump) that is already in that
+    form (_is_final) is kept as it is instead of being rebuilt: the engine makes its entries
+    so, and walking some hundred thousand values again is most of a big report's time.
+    """
     if not isinstance(obj, dict):
         return plain(obj)
-    children = children or (lambda key: None)
+    children = children or _no_children
     out = {}
     rest = sorted((key for key in obj if key not in keys), key=str)
     for key in [k for k in keys if k in obj] + rest:
@@ -161,32 +287,128 @@ def _ordered(obj: Any, keys: tuple[str, ...], children=None) -> Any:
         if shape is None:
             out[str(key)] = plain(value)
         elif shape[0] == "list":
-            out[str(key)] = [_ordered(item, shape[1], shape[2]) for item in value or ()]
+            out[str(key)] = [item if reuse and _is_final(item, shape[1], shape[2])
+                             else _ordered(item, shape[1], shape[2])
+                             for item in value or ()]
         else:
             out[str(key)] = _ordered(value, shape[1], shape[2])
     return out
 
 
+def _no_children(key: str):
+    return None
+
+
+# The types plain() gives back as they are (a float only when finite).
+_LEAF_TYPES = frozenset((str, int, float, bool, type(None)))
+_STR_ONLY = frozenset((str,))
+
+
+def _is_final(obj: Any, keys: tuple[str, ...], children=None) -> bool:
+    """True when _ordered(obj, keys, children) would give obj itself, so it can be written
+    as it is: a dict with str keys in the report's order, named children final in turn, and
+    every other value plain (_is_plain).
+
+    Only exact built-in types pass (a numpy number, a tuple or a str subclass takes the full
+    walk). Non-finite floats are not looked for here: json.dumps(allow_nan=False) refuses
+    them, and render_json then takes the full walk.
+    """
+    if type(obj) is not dict or not _STR_ONLY.issuperset(map(type, obj)):
+        return False
+    shapes = _shapes(tuple(obj), keys, children)
+    if shapes is None:                       # keys out of order
+        return False
+    for value, shape in zip(obj.values(), shapes):
+        kind = type(value)
+        if shape is None:
+            # inline for the common values: a leaf, or a list of leaves (names, nets)
+            if kind in _LEAF_TYPES or (kind is list and _LEAF_TYPES.issuperset(map(type, value))):
+                continue
+            if not _is_plain(value):
+                return False
+        elif shape[0] == "list":
+            if kind is not list or not all(_is_final(item, shape[1], shape[2])
+                                           for item in value):
+                return False
+        elif kind is dict:
+            if not (_is_final_flat(value, shape[1]) if shape[2] is None
+                    else _is_final(value, shape[1], shape[2])):
+                return False
+        elif kind not in _LEAF_TYPES and not _is_plain(value):
+            return False
+    return True
+
+
+def _is_final_flat(obj: dict, keys: tuple[str, ...]) -> bool:
+    """_is_final for a dict without named children (a spread, a location): its keys in
+    order, its values plain."""
+    present = tuple(obj)
+    if not _STR_ONLY.issuperset(map(type, present)) or (
+            present != keys and _shapes(present, keys, None) is None):
+        return False
+    values = obj.values()
+    return _LEAF_TYPES.issuperset(map(type, values)) or all(map(_is_plain, values))
+
+
+@functools.lru_cache(maxsize=256)
+def _shapes(present: tuple[str, ...], keys: tuple[str, ...], children) -> tuple | None:
+    """The shape children() gives each key present, in order; None when the keys are not in
+    the order _ordered gives (the named keys first, in order, then the others sorted).
+
+    A pure function of its arguments (children is one of this module's fixed functions of a
+    key), and a report has only a few shapes of entry, so it is remembered.
+    """
+    rest = sorted(key for key in present if key not in keys)
+    if present != tuple(key for key in keys if key in present) + tuple(rest):
+        return None
+    return tuple(children(key) if children else None for key in present)
+
+
+def _is_plain(value: Any) -> bool:
+    """True when plain(value) would give value itself (a NaN aside: see _is_final): exact
+    str, int, float, bool or None, or lists of them, or dicts with sorted str keys."""
+    kind = type(value)
+    if kind is dict:
+        if not _STR_ONLY.issuperset(map(type, value)) or list(value) != sorted(value):
+            return False
+        items = value.values()
+    elif kind is list:
+        items = value
+    else:
+        return kind in _LEAF_TYPES
+    return _LEAF_TYPES.issuperset(map(type, items)) or all(map(_is_plain, items))
+
+
+def in_key_order(entry: dict, keys: tuple[str, ...]) -> dict:
+    """The entry's keys in the report's order (the named keys first, in order, then the
+    others sorted), its values as they are: for a key added to an entry already in final
+    form, such as "path" on a branch of a report of several files."""
+    rest = sorted(key for key in entry if key not in keys)
+    return {key: entry[key] for key in [k for k in keys if k in entry] + rest}
+
+
 def _top_children(key: str):
-    return {
-        "tool": ("obj", _TOOL_KEYS, None),
-        "inputs": ("list", _INPUT_KEYS, None),
-        "findings": ("list", _FINDING_KEYS, _finding_children),
-        "branches": ("list", _BRANCH_KEYS, _spread_children),
-        "pumps": ("list", _PUMP_KEYS, _spread_children),
-        "summary": ("obj", _SUMMARY_KEYS, None),
-    }.get(key)
-
-
-def _finding_children(key: str):
-    return {
-        "location": ("obj", _LOCATION_KEYS, None),
-        "waiver": ("obj", _WAIVER_KEYS, None),
-        "waiver_expired": ("obj", _WAIVER_KEYS, None),
-    }.get(key)
+    return _TOP_CHILDREN.get(key)
 
 
 def _spread_children(key: str):
-    if key.endswith(("_V", "_A", "_s", "_ohm", "_F", "_Hz", "_C")):
+    if key.endswith(_SPREAD_SUFFIXES):
         return ("obj", _SPREAD_KEYS, None)
     return None
+
+
+_SPREAD_SUFFIXES = ("_V", "_A", "_s", "_ohm", "_F", "_Hz", "_C")
+_FINDING_CHILDREN = {
+    "location": ("obj", _LOCATION_KEYS, None),
+    "waiver": ("obj", _WAIVER_KEYS, None),
+    "waiver_expired": ("obj", _WAIVER_KEYS, None),
+}
+_finding_children = _FINDING_CHILDREN.get
+_TOP_CHILDREN = {
+    "tool": ("obj", _TOOL_KEYS, None),
+    "inputs": ("list", _INPUT_KEYS, None),
+    "findings": ("list", _FINDING_KEYS, _finding_children),
+    "branches": ("list", BRANCH_KEYS, _spread_children),
+    "pumps": ("list", PUMP_KEYS, _spread_children),
+    "summary": ("obj", _SUMMARY_KEYS, None),
+}

@@ -19,14 +19,18 @@ def render_junit(report: dict, rules: list[dict] | None = None, fail_on: str = "
     rule_ids = _rule_ids(rules or [], findings)
     paths = _paths(report, findings)
 
+    # each (rule, path)'s findings, in report order, gathered in one pass
+    by_case: dict[tuple, list[dict]] = {}
+    for f in findings:
+        by_case.setdefault((f.get("rule"), _path_of(f)), []).append(f)
+
     root = ET.Element("testsuites", {"name": "drc"})
     total_tests = total_failures = 0
     for path in paths:
         suite = ET.SubElement(root, "testsuite", {"name": _clean(path)})
         tests = failures = 0
         for rule_id in rule_ids:
-            mine = [f for f in findings
-                    if f.get("rule") == rule_id and _path_of(f) == path]
+            mine = by_case.get((rule_id, path), [])
             case = ET.SubElement(suite, "testcase",
                                  {"classname": _clean(path), "name": _clean(rule_id)})
             tests += 1
@@ -39,7 +43,8 @@ def render_junit(report: dict, rules: list[dict] | None = None, fail_on: str = "
                                f" at or above {fail_on}",
                     "type": rule_id})
                 failure.text = _clean("\n".join(_line(f) for f in failing))
-            passing = [f for f in mine if f not in failing]
+            # the rest of its findings (a finding equal to a failing one fails too)
+            passing = [f for f in mine if not is_failing(f, fail_on)]
             if passing:
                 out = ET.SubElement(case, "system-out")
                 out.text = _clean("\n".join(_note(f) for f in passing))

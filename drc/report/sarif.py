@@ -2,11 +2,10 @@
 
 from __future__ import annotations
 
-import json
 import re
 from urllib.parse import quote
 
-from drc.report.jsonreport import SEVERITIES, plain, prepare
+from drc.report.jsonreport import SEVERITIES, indented_json, plain, prepare
 
 SARIF_VERSION = "2.1.0"
 SARIF_SCHEMA_URI = ("https://docs.oasis-open.org/sarif/sarif/v2.1.0/errata01/os/schemas/"
@@ -45,7 +44,7 @@ def render_sarif(report: dict, rules: list[dict] | None = None) -> str:
     run["properties"] = run_properties
 
     log = {"$schema": SARIF_SCHEMA_URI, "version": SARIF_VERSION, "runs": [run]}
-    return json.dumps(log, indent=2, ensure_ascii=False, allow_nan=False) + "\n"
+    return indented_json(log) + "\n"
 
 
 def artifact_uri(path: str) -> str:

@@ -3,6 +3,7 @@ tables, what was assumed, the cautions, and one closing count."""
 
 from __future__ import annotations
 
+import re
 import textwrap
 
 from drc.report.jsonreport import (SEVERITIES, check_fail_on, is_failing, is_known, is_waived,
@@ -193,9 +194,42 @@ def _details(finding: dict) -> list[str]:
 
 
 def _wrapped(lead: str, text: str) -> list[str]:
+    """text wrapped to WIDTH after lead, the lines after the first indented to match."""
+    if _ONE_SPACED.fullmatch(text):
+        return _wrapped_words(lead, text.split(" "))
     return textwrap.wrap(text, WIDTH, initial_indent=lead,
                          subsequent_indent=" " * len(lead),
                          break_long_words=False, break_on_hyphens=False) or [lead.rstrip()]
+
+
+# Words of no white space, one space between each: nearly every message, fix and caution.
+_ONE_SPACED = re.compile(r"\S+(?: \S+)*")
+
+
+def _wrapped_words(lead: str, words: list[str]) -> list[str]:
+    """What textwrap.wrap gives in _wrapped for words joined by single spaces, with no
+    textwrap.TextWrapper: its greedy filling of each line, word by word, is the same but
+    costs several times as much on a big board's thousands of fixes. A word longer than a
+    line stands on a line of its own, unbroken (break_long_words=False)."""
+    width = WIDTH - len(lead)
+    lines: list[str] = []
+    line = ""
+    for word in words:
+        if not line:
+            line = word
+        elif len(line) + 1 + len(word) <= width:
+            line += " " + word
+            continue
+        else:
+            lines.append(line)
+            line = word
+        if len(word) > width:             # too long for any line: alone on its own
+            lines.append(line)
+            line = ""
+    if line:
+        lines.append(line)
+    indent = " " * len(lead)
+    return [lead + lines[0]] + [indent + rest for rest in lines[1:]]
 
 
 def _table(title: str, headers: list[str], rows: list[list[str]], right: set[int]) -> list[str]:
