@@ -14,7 +14,6 @@ import math
 from dataclasses import dataclass, field
 from typing import Any
 
-import networkx as nx
 import numpy as np
 
 from drc import profiles
@@ -342,7 +341,6 @@ class Design:
     title: str
     flat: FlatDesign
     context: Context
-    graph: nx.MultiGraph
     terminals: dict[str, list[tuple[Element, int]]]
     supplies: dict[str, Supply]
     pins: dict[str, Pin]
@@ -352,6 +350,16 @@ class Design:
     assumptions: list[str]
     notes: list[tuple[Location, str]]
     pumps: list = field(default_factory=list)
+
+    @property
+    def graph(self):
+        """The circuit as a networkx MultiGraph (see drc.api), built on first use: the
+        analysis itself walks `terminals`, and most checks never ask for the graph, so a
+        board does not pay for it (nor for importing networkx) unless a rule does."""
+        found = self.__dict__.get("_graph")
+        if found is None:
+            found = self.__dict__["_graph"] = circuit_graph(self.flat)
+        return found
 
     @property
     def elements(self) -> list[Element]:
@@ -456,18 +464,7 @@ def analyse(flat: FlatDesign, context: Context) -> Design:
     assumptions = _Assumptions()
     notes: list[tuple[Location, str]] = []
     errors: list[InputError] = []
-    terminals: dict[str, list[tuple[Element, int]]] = {}
-    graph = nx.MultiGraph()
-    graph.add_nodes_from(flat.nets)
-    for e in flat.elements:
-        for k, n in enumerate(e.nodes):
-            terminals.setdefault(n, []).append((e, k))
-        if len(e.nodes) == 2:
-            graph.add_edge(e.nodes[0], e.nodes[1], key=e.key, element=e)
-        elif e.nodes:
-            graph.add_node(("part", e.key), element=e)
-            for n in e.nodes:
-                graph.add_edge(("part", e.key), n, key=e.key, element=e)
+    terminals = _terminals(flat)
 
     supplies: dict[str, Supply] = {}
     claimed: set[str] = set()
@@ -541,7 +538,7 @@ def analyse(flat: FlatDesign, context: Context) -> Design:
 
     leds = _find_leds(flat, context, assumptions)
     branches = _trace_branches(flat, terminals, supplies, pins, leds, corners, notes)
-    design = Design(path=flat.path, title=flat.title, flat=flat, context=context, graph=graph,
+    design = Design(path=flat.path, title=flat.title, flat=flat, context=context,
                     terminals=terminals, supplies=supplies, pins=pins, leds=leds,
                     branches=branches, corners=corners, assumptions=[], notes=notes)
     for b in branches:
@@ -553,6 +550,36 @@ def analyse(flat: FlatDesign, context: Context) -> Design:
             solve_branch(b, corners, flat)
     design.assumptions = list(context.assumptions) + assumptions.lines()
     return design
+
+
+def _terminals(flat: FlatDesign) -> dict[str, list[tuple[Element, int]]]:
+    """Net -> [(element, terminal index)] for every terminal, nets in order of first use."""
+    terminals: dict[str, list[tuple[Element, int]]] = {}
+    for e in flat.elements:
+        for k, n in enumerate(e.nodes):
+            found = terminals.get(n)
+            if found is None:
+                terminals[n] = [(e, k)]
+            else:
+                found.append((e, k))
+    return terminals
+
+
+def circuit_graph(flat: FlatDesign):
+    """The circuit as a networkx MultiGraph: nets are nodes, a two-terminal element is an
+    edge (key: its lower-case name, data "element"), a part with more terminals is a node
+    ("part", key) with an edge to each of its nets."""
+    import networkx as nx
+    graph = nx.MultiGraph()
+    graph.add_nodes_from(flat.nets)
+    for e in flat.elements:
+        if len(e.nodes) == 2:
+            graph.add_edge(e.nodes[0], e.nodes[1], key=e.key, element=e)
+        elif e.nodes:
+            graph.add_node(("part", e.key), element=e)
+            for n in e.nodes:
+                graph.add_edge(("part", e.key), n, key=e.key, element=e)
+    return graph
 
 
 def _configured_supply(flat: FlatDesign, spec: SupplySpec, assumptions: _Assumptions) -> Supply:
@@ -686,54 +713,89 @@ def _configured_pin(flat: FlatDesign, spec: PinSpec, supplies: dict[str, Supply]
 
 
 def _find_leds(flat: FlatDesign, context: Context, assumptions: _Assumptions) -> dict[str, Led]:
+    """Every diode that is an LED, with its colour, model and ratings. Diodes of one model,
+    area and [led] table are judged alike, so each such kind is judged once and its words
+    are said for each diode of that kind."""
     leds: dict[str, Led] = {}
     nominal_K = context.nominal_temperature_C + ZERO_CELSIUS_K
+    spec_of = _led_spec_finder(context)
+    judged: dict = {}
     for e in flat.elements:
         if e.kind != "D":
             continue
         model = flat.models.get(e.model) if e.model else None
-        params = diode_params(flat, e)
-        spec = context.led(e.name, model.name if model else None)
-        usable = model is not None and any(k in model.params for k in ("is", "n", "rs"))
-        vf = float(voltage_at_current(params, 1e-3, nominal_K))
-        if spec is None and not (usable and vf >= LED_THRESHOLD_V):
-            if usable and INFRARED_LOOKALIKE_V <= vf < LED_THRESHOLD_V:
-                assumptions.add(f"drops {vf:.2f} V at 1 mA: taken as a plain diode; if it is an "
-                                "infrared LED, name it in an [led] table", e.name)
-            continue
-        colour = spec.colour if spec is not None else None
-        if colour is None:
-            if usable:
-                colour = profiles.infer_colour(vf)
-                assumptions.add(f"colour taken as {colour} from its forward voltage "
-                                f"{vf:.2f} V at 1 mA", e.name)
-            else:
-                colour = "red"
-                assumptions.add("named as an LED but with no usable .model and no colour: "
-                                "taken as red", e.name)
-        profile = profiles.led(colour)
-        model_from = "netlist"
-        if not usable:
-            params = led_model_from_forward_voltages(profile.vf_1mA_V, profile.vf_20mA_V,
-                                                     profile.tempco_V_per_K)
-            model_from = "default"
-            assumptions.add(f"no usable .model: the built-in {colour} LED ({profile.vf_1mA_V:g} V at "
-                            f"1 mA, {profile.vf_20mA_V:g} V at 20 mA; from memory)", e.name)
-        visible = spec.visible_current_A if spec and spec.visible_current_A is not None else None
-        maximum = spec.max_current_A if spec and spec.max_current_A is not None else None
-        reverse = spec.max_reverse_V if spec and spec.max_reverse_V is not None else None
-        missing = [w for w, v in (("visible", visible), ("max", maximum), ("reverse", reverse)) if v is None]
-        if missing:
-            assumptions.add(f"{colour} LED ratings from the built-in profile: "
-                            f"visible {profile.visible_current_A * 1e3:g} mA, max "
-                            f"{profile.max_current_A * 1e3:g} mA, reverse {profile.max_reverse_V:g} V "
-                            "(common practice)", e.name)
-        leds[e.key] = Led(e, colour, params,
-                          visible if visible is not None else profile.visible_current_A,
-                          maximum if maximum is not None else profile.max_current_A,
-                          reverse if reverse is not None else profile.max_reverse_V,
-                          profile.eye_safety, model_from)
+        spec = spec_of(e.name, model.name if model else None)
+        kind = (e.model, e.value, id(spec))
+        found = judged.get(kind)
+        if found is None:
+            found = judged[kind] = _judge_diode(flat, e, model, spec, nominal_K)
+        words, ratings = found
+        for text in words:
+            assumptions.add(text, e.name)
+        if ratings is not None:
+            leds[e.key] = Led(e, *ratings)
     return leds
+
+
+def _led_spec_finder(context: Context):
+    """context.led(name, model), with the answer for the names that no [led] table names
+    (by element or label) found once per model: for those it depends on the model alone."""
+    specs = list(context.leds.values())
+    named = {s.element.lower() for s in specs if s.element is not None}
+    named |= {s.label.lower() for s in specs if s.element is None and s.label is not None}
+    by_model: dict = {}
+
+    def find(name: str, model: str | None):
+        if name.lower() in named:
+            return context.led(name, model)
+        if model not in by_model:
+            by_model[model] = context.led(name, model)
+        return by_model[model]
+    return find
+
+
+def _judge_diode(flat: FlatDesign, e: Element, model, spec, nominal_K: float):
+    """(the assumption words for a diode, its Led fields after the element, or None when it
+    is a plain diode)."""
+    words: list[str] = []
+    params = diode_params(flat, e)
+    usable = model is not None and any(k in model.params for k in ("is", "n", "rs"))
+    vf = float(voltage_at_current(params, 1e-3, nominal_K))
+    if spec is None and not (usable and vf >= LED_THRESHOLD_V):
+        if usable and INFRARED_LOOKALIKE_V <= vf < LED_THRESHOLD_V:
+            words.append(f"drops {vf:.2f} V at 1 mA: taken as a plain diode; if it is an "
+                         "infrared LED, name it in an [led] table")
+        return words, None
+    colour = spec.colour if spec is not None else None
+    if colour is None:
+        if usable:
+            colour = profiles.infer_colour(vf)
+            words.append(f"colour taken as {colour} from its forward voltage {vf:.2f} V at 1 mA")
+        else:
+            colour = "red"
+            words.append("named as an LED but with no usable .model and no colour: taken as red")
+    profile = profiles.led(colour)
+    model_from = "netlist"
+    if not usable:
+        params = led_model_from_forward_voltages(profile.vf_1mA_V, profile.vf_20mA_V,
+                                                 profile.tempco_V_per_K)
+        model_from = "default"
+        words.append(f"no usable .model: the built-in {colour} LED ({profile.vf_1mA_V:g} V at "
+                     f"1 mA, {profile.vf_20mA_V:g} V at 20 mA; from memory)")
+    visible = spec.visible_current_A if spec and spec.visible_current_A is not None else None
+    maximum = spec.max_current_A if spec and spec.max_current_A is not None else None
+    reverse = spec.max_reverse_V if spec and spec.max_reverse_V is not None else None
+    missing = [w for w, v in (("visible", visible), ("max", maximum), ("reverse", reverse)) if v is None]
+    if missing:
+        words.append(f"{colour} LED ratings from the built-in profile: "
+                     f"visible {profile.visible_current_A * 1e3:g} mA, max "
+                     f"{profile.max_current_A * 1e3:g} mA, reverse {profile.max_reverse_V:g} V "
+                     "(common practice)")
+    return words, (colour, params,
+                   visible if visible is not None else profile.visible_current_A,
+                   maximum if maximum is not None else profile.max_current_A,
+                   reverse if reverse is not None else profile.max_reverse_V,
+                   profile.eye_safety, model_from)
 
 
 def _is_wire(e: Element) -> bool:
@@ -749,6 +811,7 @@ def _trace_branches(flat, terminals, supplies, pins, leds, corners, notes) -> li
     pin_labels = {p.label for p in pin_nets.values()}
     seen: set[str] = set()
     branches = []
+    plans: dict = {}        # (anode end, cathode end) -> how _classify drove the first string
 
     def other(e: Element, net: str) -> str:
         return e.nodes[1] if e.nodes[0] == net else e.nodes[0]
@@ -828,7 +891,7 @@ def _trace_branches(flat, terminals, supplies, pins, leds, corners, notes) -> li
                         nets=string_nets, anode_net=anode_end, cathode_net=cathode_end,
                         drive="unknown", source=None)
         if is_string:
-            _classify(branch, rail_nets, pin_nets, corners)
+            _classify_alike(branch, rail_nets, pin_nets, corners, plans)
             if branch.drive == "unknown" and branch.note is None:
                 branch.note = (f"{e.name}'s string runs from net {anode_end} to net {cathode_end}; "
                                "neither end is a rail, a port pin or ground")
@@ -922,20 +985,32 @@ def _pump_branch(branch, r_nets, r_elements, region_leds, pin_nets, rail_nets, t
 
 
 def _solve_pump_branch(b: Branch, corners: Corners, flat: FlatDesign) -> None:
-    from drc.pumps import solve_on_own_corners
+    """The pump-fed LED's figures from the periodic model. A board repeats a few pump cells
+    many times: a cell identical to one solved before (`_pump_key`) takes its result under
+    its own names, as drc.pumps would give it, without building its network again."""
+    from drc.pumps import result_for_twin, solve_on_own_corners
     region = b.pump_region
-    try:
-        result = solve_on_own_corners(region, corners, lambda e: diode_params(flat, e))
-    except (ValueError, FloatingPointError, np.linalg.LinAlgError) as error:
-        b.note = f"{b.id}: the pump model could not solve this circuit ({error})"
-        return
-    region.result = result
     load = region.leds[0]
+    key, nets = _pump_key(region, corners, flat)
+    known = PUMP_SOLUTIONS.get(key)
+    if known is None:
+        try:
+            result = solve_on_own_corners(region, corners, lambda e: diode_params(flat, e))
+        except (ValueError, FloatingPointError, np.linalg.LinAlgError) as error:
+            b.note = f"{b.id}: the pump model could not solve this circuit ({error})"
+            return
+        forward = voltage_at_current(load.params, np.maximum(result.load_average_A, 1e-15),
+                                     corners.temperature_K)
+        PUMP_SOLUTIONS.put(key, (region, nets, result, forward))
+    else:
+        first, first_nets, first_result, forward = known
+        result = result_for_twin(first_result, first, region, first_nets, nets)
+        region.signature = first.signature
+    region.result = result
     name = load.name
     b.current_A = {name: result.load_average_A}
     b.peak_current_A = {name: result.load_peak_A}
-    b.forward_V = {name: voltage_at_current(load.params, np.maximum(result.load_average_A, 1e-15),
-                                             corners.temperature_K)}
+    b.forward_V = {name: forward}
     b.reverse_V = {name: np.maximum(result.diode_reverse_max_V.get(name, np.zeros(corners.count)), 0.0)}
     b.pin_current_A = {label: np.maximum(result.pin_high_peak_A[label], result.pin_low_peak_A[label])
                        for label in result.pin_high_peak_A if label in {p.label for p in region.pins}}
@@ -944,6 +1019,31 @@ def _solve_pump_branch(b: Branch, corners: Corners, flat: FlatDesign) -> None:
         b.note = (f"{b.id}'s pump also feeds {', '.join(l.name for l in region.leds[1:])}: "
                   f"drc takes {name} as its load")
         b.leds = [load]
+
+
+def _pump_key(region, corners: Corners, flat: FlatDesign):
+    """(a key that two pump regions share only if the pump model sees them as one circuit
+    under other names, the region's nets in the key's order). It holds every part in order
+    with its value or diode parameters and its nets renamed by first appearance, the pins
+    and rails in order with their drive and levels, the load and its ratings, the output
+    net and the corner set; what drc.pumps builds the model network from."""
+    canon = Canon()
+    load = region.leds[0]
+    parts = []
+    for x in region.elements:
+        nodes = tuple(canon(n) for n in x.nodes)
+        if x.kind == "D":
+            led = x.key == load.element.key
+            parts.append(("D", nodes, diode_params(flat, x), led, load.params if led else None))
+        else:
+            parts.append((x.kind, nodes, x.value))
+    pins = tuple((canon(p.net), p.drive, p.supply, p.output_resistance_ohm, p.frequency_Hz, p.duty,
+                  p.start_s, value_key(p.high_V)) for p in region.pins)
+    rails = tuple((canon(r.net), r.label, value_key(r.voltage_V)) for r in region.rails)
+    nets = tuple(canon(n) for n in region.nets)
+    output = canon(region.pumps[0].output_net if region.pumps else load.element.nodes[0])
+    key = (tuple(parts), pins, rails, nets, output, float(load.visible_current_A), corners.serial)
+    return key, list(canon.order)
 
 
 @dataclass
@@ -1015,7 +1115,27 @@ def _zeros(count: int) -> np.ndarray:
     return found
 
 
+def _classify_alike(b: Branch, rail_nets, pin_nets, corners: Corners, plans: dict) -> None:
+    """_classify, for strings between the same two nets done once: what it sets depends on
+    the two end nets alone (and the corners), save the notes, which name the string; a
+    pair of ends whose first string got a note is classified afresh for each string."""
+    ends = (b.anode_net, b.cathode_net)
+    plan = plans.get(ends)
+    if plan is None:
+        _classify(b, rail_nets, pin_nets, corners)
+        plans[ends] = False if b.note is not None else (
+            b.reversed, b.drive, b.source, b.supply, b.pin, b.sink_pin,
+            [(ph.share, ph.drive_V, ph.extra_resistance_ohm, ph.words, ph.drive_key) for ph in b.phases])
+        return
+    if plan is False:
+        _classify(b, rail_nets, pin_nets, corners)
+        return
+    b.reversed, b.drive, b.source, b.supply, b.pin, b.sink_pin, phases = plan
+    b.phases = [Phase(share, v, ohm, words, drive_key=key) for share, v, ohm, words, key in phases]
+
+
 def _classify(b: Branch, rail_nets, pin_nets, corners: Corners) -> None:
+    """Drive, phases and orientation of a plain string from what its two end nets are."""
     count = corners.count
     zero = _zeros(count)
     a_kind, a_part = _end_voltage(b.anode_net, rail_nets, pin_nets)
@@ -1115,31 +1235,26 @@ def diode_params(flat: FlatDesign, e: Element) -> DiodeParams:
 
 
 def solve_branch(b: Branch, corners: Corners, flat: FlatDesign) -> None:
-    """Operating point of a branch in each phase of its drive, at every corner."""
+    """Operating point of a branch in each phase of its drive, at every corner. Identical
+    strings (the same diodes, resistance, drive and phases at the same corners) are solved
+    once (STRING_SOLUTIONS)."""
     if not b.phases:
         return
     if b.network is not None:
         return _solve_network_branch(b, corners, flat)
-    r = sum((x.value or 0.0) for x in b.resistors) * corners.resistor_factor
-    b.series_resistance_ohm = np.asarray(r, dtype=float) * np.ones(corners.count)
-    t = corners.temperature_K
+    # (the resistor factor is a float array over the corners, so this is one already)
+    b.series_resistance_ohm = sum((x.value or 0.0) for x in b.resistors) * corners.resistor_factor
     led_params = {l.element.key: l.params for l in b.leds}
-    stages = []
-    for st in b.stages:
-        stage = []
-        for d in st:
-            if d.key in led_params:
-                stage.append(led_params[d.key])
-            else:
-                stage.append(diode_params(flat, d))
-        stages.append(stage)
+    stages = [[led_params[d.key] if d.key in led_params else diode_params(flat, d) for d in st]
+              for st in b.stages]
     key = (tuple(tuple(st) for st in stages), float(b.series_resistance_ohm[corners.nominal]),
            corners.serial, tuple((ph.share, ph.drive_key or value_key(ph.drive_V), ph.extra_resistance_ohm)
                                  for ph in b.phases),
            tuple(tuple(d.key in led_params for d in st) for st in b.stages), b.reversed,
-           tuple(p is not None for p in (b.pin, b.sink_pin)))
+           b.pin is not None, b.sink_pin is not None)
     known = STRING_SOLUTIONS.get(key)
     if known is None:
+        t = corners.temperature_K
         labels = {b.supply.label} if b.supply is not None else set()
         labels |= {p.supply for p in (b.pin, b.sink_pin) if p is not None and p.supply}
         labels = sorted(labels)
@@ -1151,14 +1266,22 @@ def solve_branch(b: Branch, corners: Corners, flat: FlatDesign) -> None:
         small.series_resistance_ohm = b.series_resistance_ohm[sel]
         per_led, lit, pin_total = _solve_string_phases(small, corners.subset(sel), stages,
                                                        led_params, t[sel])
-        known = ([tuple(v[inverse] for v in entry) for entry in per_led], lit, pin_total[inverse])
+        names = [d.name for st in b.stages for d in st if d.key in led_params]
+        known = ([tuple(v[inverse] for v in entry) for entry in per_led], lit, pin_total[inverse],
+                 len(names))
         STRING_SOLUTIONS.put(key, known)
-    per_led, lit_phase, pin_total = known
-    names = [d.name for st in b.stages for d in st if d.key in led_params]
-    b.current_A = {n: v[0] for n, v in zip(names, per_led)}
-    b.peak_current_A = {n: v[1] for n, v in zip(names, per_led)}
-    b.forward_V = {n: v[2] for n, v in zip(names, per_led)}
-    b.reverse_V = {n: v[3] for n, v in zip(names, per_led)}
+    per_led, lit_phase, pin_total, count = known
+    if count == 1:       # the common string of one LED (b.leds: the string's LEDs in order)
+        name = b.leds[0].name
+        current, peak, forward, reverse = per_led[0]
+        b.current_A, b.peak_current_A = {name: current}, {name: peak}
+        b.forward_V, b.reverse_V = {name: forward}, {name: reverse}
+    else:
+        names = [d.name for st in b.stages for d in st if d.key in led_params]
+        b.current_A = {n: v[0] for n, v in zip(names, per_led)}
+        b.peak_current_A = {n: v[1] for n, v in zip(names, per_led)}
+        b.forward_V = {n: v[2] for n, v in zip(names, per_led)}
+        b.reverse_V = {n: v[3] for n, v in zip(names, per_led)}
     b.lit_phase = lit_phase
     b.pin_current_A = {p.label: pin_total for p in (b.pin, b.sink_pin) if p is not None}
 

@@ -433,7 +433,8 @@ class _Compiled:
                 vj = vj + np.minimum((vj - vjs[k - 2]) * self.step_ratio[k], self.nvt)
             if guesses is not None:
                 vj = np.where(guesses[1][:, None], guesses[0][k], vj)
-            i, g = self.diode_current(vj)
+            if not (nd and MAX_NEWTON_ITERATIONS):   # nothing to solve: no junctions
+                i, g = self.diode_current(vj)
             for _ in range(MAX_NEWTON_ITERATIONS if nd else 0):
                 i, g = self.diode_current(vj)
                 residual = vj + np.einsum("cij,cj->ci", Z, i) - voc

@@ -10,7 +10,6 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
-import networkx as nx
 import numpy as np
 
 from drc.design import GROUND, Element
@@ -81,24 +80,25 @@ def classify(region_elements: list[Element], pin_nets: dict, rail_nets: dict,
         net = c.nodes[0] if c.nodes[0] in toggling else c.nodes[1]
         return pin_nets[net].label
 
-    # the diodes as a directed graph, anode to cathode: a ladder is a path through it
-    conduction = nx.MultiDiGraph()
+    # the diodes as a directed graph, anode to cathode: a ladder is a path through it. Each
+    # net's diodes out (and in) are grouped by the net at their other end, the groups in
+    # order of first appearance (the order a networkx MultiDiGraph gives its edges in).
+    out_of: dict[str, dict[str, list[Element]]] = {}
+    into: dict[str, dict[str, list[Element]]] = {}
     for d in diodes:
-        if d.nodes[0] != d.nodes[1]:
-            conduction.add_edge(d.nodes[0], d.nodes[1], key=d.key, element=d)
+        anode, cathode = d.nodes[0], d.nodes[1]
+        if anode != cathode:
+            out_of.setdefault(anode, {}).setdefault(cathode, []).append(d)
+            into.setdefault(cathode, {}).setdefault(anode, []).append(d)
 
     def transfer_from(net):
-        if net not in conduction:
-            return []
-        return [data["element"] for _, _, data in conduction.out_edges(net, data=True)]
+        return [d for group in out_of.get(net, {}).values() for d in group]
 
     def charge_into(net):
-        if net not in conduction:
-            return []
-        return [data["element"] for _, _, data in conduction.in_edges(net, data=True)]
+        return [d for group in into.get(net, {}).values() for d in group]
 
     # a chain starts at a pumped node that no transfer diode from another pumped node feeds
-    fed_from_pumped = {v for u in pumped if u in conduction for v in conduction.successors(u)}
+    fed_from_pumped = {v for u in pumped for v in out_of.get(u, ())}
     pumps = []
     for start, cap in pumped.items():
         if start in fed_from_pumped:
@@ -264,11 +264,26 @@ def _signature(network: PumpNetwork, corners, output: str, load, fast: bool):
 
 def _renamed(known, network: PumpNetwork, canon: Canon):
     """A cached result under this network's own pin, diode and node names."""
-    import copy
     result, original, old_canon = known
     pin_map = {a.name: b.name for a, b in zip(original.pins, network.pins)}
     diode_map = {a.name: b.name for a, b in zip(original.diodes, network.diodes)}
     node_map = {old: canon.order[k] for old, k in old_canon.names.items() if k < len(canon.order)}
+    return _with_names(result, pin_map, diode_map, node_map)
+
+
+def result_for_twin(result, region: PumpRegion, twin: PumpRegion, nets, twin_nets):
+    """`result`, solved for `region`, under the names of `twin`: a region of the same parts,
+    values and drive in the same order, whose nets `twin_nets` stand where `nets` stand."""
+    pin_map = {a.label: b.label for a, b in zip(region.pins, twin.pins)}
+    diode_map = {a.name: b.name for a, b in zip(
+        [e for e in region.elements if e.kind == "D"], [e for e in twin.elements if e.kind == "D"])}
+    return _with_names(result, pin_map, diode_map, dict(zip(nets, twin_nets)))
+
+
+def _with_names(result, pin_map, diode_map, node_map):
+    """A shallow copy of a result with its per-pin, per-diode and per-node tables renamed
+    (the arrays are shared: results are read-only)."""
+    import copy
     out = copy.copy(result)
     for field_name in ("pin_high_peak_A", "pin_low_peak_A", "startup_surge_A", "pin_current_A",
                        "startup_pin_current_A"):

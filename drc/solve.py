@@ -111,23 +111,34 @@ def _log_wright_omega(x: np.ndarray) -> np.ndarray:
     Starting values and the fourth-order Fritsch-Shafer-Crowley iteration of Lawrence,
     Corless and Jeffrey (ACM TOMS 38(3), Algorithm 917, 2012); two steps reach double
     precision. Below x = -30, w = e^x (1 - e^x) to double precision, kept in logs.
+    Each starting value is worked out only where it is used (element by element the same
+    arithmetic as working all three out everywhere and choosing).
     """
     x = np.asarray(x, dtype=float)
     with np.errstate(all="ignore"):
-        mid = x - 1.0
-        w_mid = (1.0 + mid / 2 + mid ** 2 / 16 - mid ** 3 / 192 - mid ** 4 / 3072
-                 + 13 * mid ** 5 / 61440)
-        ex = np.exp(np.minimum(x, -2.0))
-        w_low = ex - ex ** 2 + 1.5 * ex ** 3
-        xs = np.maximum(x, 1.0)
-        lx = np.log(xs)
-        w_high = xs - lx + lx / xs + lx * (lx - 2.0) / (2.0 * xs ** 2)
-        w = np.where(x <= -2.0, w_low, np.where(x <= 1.0, w_mid, w_high))
+        w = np.empty(x.shape)
+        low = x <= -2.0
+        high = x > 1.0
+        middle = ~(low | high)
+        if low.any():
+            ex = np.exp(x[low])
+            w[low] = ex - ex ** 2 + 1.5 * ex ** 3
+        if middle.any():
+            mid = x[middle] - 1.0
+            w[middle] = (1.0 + mid / 2 + mid ** 2 / 16 - mid ** 3 / 192 - mid ** 4 / 3072
+                         + 13 * mid ** 5 / 61440)
+        if high.any():
+            xs = x[high]
+            lx = np.log(xs)
+            w[high] = xs - lx + lx / xs + lx * (lx - 2.0) / (2.0 * xs ** 2)
         for _ in range(2):
             r = x - w - np.log(w)
-            q = 2.0 * (1.0 + w) * (1.0 + w + 2.0 * r / 3.0)
-            w = w * (1.0 + r / (1.0 + w) * (q - r) / (q - 2.0 * r))
+            w1 = 1.0 + w
+            q = 2.0 * w1 * (w1 + 2.0 * r / 3.0)
+            w = w * (1.0 + r / w1 * (q - r) / (q - 2.0 * r))
         deep = x < -30.0
+        if not deep.any():
+            return np.asarray(np.log(w))
         return np.where(deep, x - np.exp(np.minimum(x, -30.0)), np.log(np.where(deep, 1.0, w)))
 
 
@@ -174,26 +185,40 @@ def _logsumexp(parts: list[np.ndarray]) -> np.ndarray:
 
 
 class _StageSolver:
-    """A stage of diodes in parallel: its voltage from ls = ln(I_stage + sum IS)."""
+    """A stage of diodes in parallel: its voltage from ls = ln(I_stage + sum IS).
 
-    def __init__(self, diodes: list[_Diode]):
+    Equal diodes in a stage (LEDs of one part number side by side) give equal numbers at
+    every step, so each distinct one is evaluated once and its values stand for its equals
+    (`_each`): the same arithmetic as evaluating every diode, done once per kind."""
+
+    def __init__(self, diodes: list[_Diode], params: list[DiodeParams] | None = None):
         self.diodes = diodes
         self.sum_IS = sum(d.IS for d in diodes)
         self.last_V = np.full(self.sum_IS.shape, np.nan)   # warm start for the next solve
+        params = params if params is not None else [object() for _ in diodes]
+        firsts: dict = {}
+        self.which = [firsts.setdefault(p, j) for j, p in enumerate(params)]
+        self.distinct = sorted(set(self.which))
+
+    def _each(self, diodes, fn) -> list:
+        """fn(diode) for every diode of the stage (given as `diodes`, in stage order), each
+        distinct diode evaluated once."""
+        done = {j: fn(diodes[j]) for j in self.distinct}
+        return [done[j] for j in self.which]
 
     def voltage(self, ls: np.ndarray, index: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Stage voltage at the corners `index` where ln(I + sum IS) = ls, and dV/d(ls)."""
-        diodes = [d.take(index) for d in self.diodes]
-        if len(diodes) == 1:
-            d = diodes[0]
+        if len(self.diodes) == 1:
+            d = self.diodes[0].take(index)
             with np.errstate(over="ignore"):
                 return d.voltage(ls), d.nvt + d.RS * np.exp(ls)
+        diodes = [d.take(index) if j in self.distinct else None for j, d in enumerate(self.diodes)]
         # Each diode carries at most all of it and one carries at least its m-th share.
-        hi = np.minimum.reduce([d.voltage(ls) for d in diodes])
-        lo = np.minimum.reduce([d.voltage(ls - math.log(len(diodes))) for d in diodes])
+        hi = np.minimum.reduce(self._each(diodes, lambda d: d.voltage(ls)))
+        lo = np.minimum.reduce(self._each(diodes, lambda d: d.voltage(ls - math.log(len(diodes)))))
 
         def residual(v, sub):
-            logs, slopes = zip(*(d.take(sub).log_h(v) for d in diodes))
+            logs, slopes = zip(*self._each(diodes, lambda d: d.take(sub).log_h(v)))
             total = _logsumexp(list(logs))
             slope = sum(np.exp(lh - total) * s for lh, s in zip(logs, slopes))
             return total - ls[sub], slope
@@ -202,9 +227,13 @@ class _StageSolver:
         start = np.where(np.isfinite(last), np.clip(last, lo, hi), hi)
         v = _safeguarded_newton(residual, start, lo, hi, _TOL_V, _TOL_V)
         self.last_V[index] = v
-        logs, slopes = zip(*(d.log_h(v) for d in diodes))
+        logs, slopes = zip(*self._each(diodes, lambda d: d.log_h(v)))
         # d(ls)/dV = sum_j (h_j / s) * d(ln h_j)/dV, with s = sum_j h_j (well scaled)
         return v, 1.0 / sum(np.exp(lh - ls) * s for lh, s in zip(logs, slopes))
+
+    def log_sum(self, v: np.ndarray) -> np.ndarray:
+        """ln(I_stage + sum IS) with the whole voltage v across the stage (every corner)."""
+        return _logsumexp(self._each(self.diodes, lambda d: d.log_h(v)[0]))
 
     def voltage_at_current(self, current: np.ndarray, index: np.ndarray):
         """Stage voltage and dV/dI at the corners `index` from the stage current itself
@@ -221,7 +250,7 @@ class _StageSolver:
     def currents(self, v: np.ndarray, stage_current: np.ndarray) -> list[np.ndarray]:
         if len(self.diodes) == 1:
             return [stage_current]
-        return [d.current(v) for d in self.diodes]
+        return [c.copy() for c in self._each(self.diodes, lambda d: d.current(v))]
 
 
 def _check_stages(stages) -> list[list[DiodeParams]]:
@@ -265,7 +294,7 @@ def solve_string(drive_V, resistance_ohm, stages: Sequence[Stage], temperature_K
     if not np.all(np.isfinite(t) & (t > 0)):
         raise InputError(None, "temperature must be above 0 K at every corner")
 
-    solvers = [_StageSolver([_Diode(d, t) for d in stage]) for stage in chosen]
+    solvers = [_StageSolver([_Diode(d, t) for d in stage], stage) for stage in chosen]
     floor = np.minimum.reduce([s.sum_IS for s in solvers])          # I >= -floor
     # ln(I + sum IS_k) = ln(e^u + delta_k): exact for the weakest stage, where delta_k = 0
     deltas = [s.sum_IS - floor for s in solvers]
@@ -293,7 +322,7 @@ def solve_string(drive_V, resistance_ohm, stages: Sequence[Stage], temperature_K
     with np.errstate(divide="ignore", over="ignore"):
         by_resistance = np.where(r_min > 0, np.log(np.maximum(v, 0) / np.where(r_min > 0, r_min, 1.0)
                                                   + floor), np.inf)
-    by_stage = np.minimum.reduce([_logsumexp([d.log_h(v)[0] for d in s.diodes]) for s in solvers])
+    by_stage = np.minimum.reduce([s.log_sum(v) for s in solvers])
     forward = v > 0
     u_hi = np.where(forward, np.minimum(np.minimum(by_resistance, by_stage), _U_CAP), ln_floor)
     deepest = np.minimum.reduce([d.lnIS + np.minimum(v, 0) / d.nvt
