@@ -8,28 +8,101 @@ import numpy as np
 from drc import preferred
 from drc.analysis import Branch, Design, Led, diode_params
 from drc.diode import voltage_at_current
-from drc.solve import choose_series_resistor
-from drc.memo import Memo, value_key
-from drc.units import format_si
+from drc.errors import InputError
+from drc.flicker import modulation_percent
+from drc.solve import SeriesResistorChoice, solve_string
+from drc.memo import Memo
+from drc.api import format_quantity
 
 CHOICES = Memo()
+ROW_CURRENTS = Memo(limit=16384)    # rows of 146 currents: at most some 19 MB
+
+# The candidates series_resistor_advice weighs: choose_series_resistor's defaults.
+_SERIES, _LOWEST_OHM, _HIGHEST_OHM = "E24", 1.0, 1e6
 
 
-def _choose(drive, fixed, stages, temperature_K, visible_A, max_A, factor):
-    """choose_series_resistor, once per distinct branch, on the corners that bound it: the
-    distinct combinations of drive, temperature and tolerance, cut to the ends of each."""
-    key = (value_key(drive), value_key(fixed), tuple(tuple(s) for s in stages),
-           value_key(temperature_K), visible_A, max_A, value_key(factor))
+def _choose(corners, drive, extra_ohm: float, stages, visible_A, max_A) -> SeriesResistorChoice:
+    """What choose_series_resistor(drive, extra_ohm, stages, temperature, None, None,
+    visible_A, max_A, candidate_factor=resistor_factor) gives, on the corners that bound the
+    branch: the distinct combinations of drive, temperature and tolerance (np.unique's
+    sorted rows), worked out once per distinct branch.
+
+    The key holds everything the choice depends on: the corner set (its serial stands for
+    its temperatures and resistor factors, fixed for its life), the drive at every corner,
+    the resistance outside the branch, the diodes' parameters, and the two currents."""
+    drive = np.asarray(drive, float)
+    stages_key = tuple(tuple(s) for s in stages)
+    key = (corners.serial, drive.shape, drive.tobytes(), extra_ohm, stages_key, visible_A, max_A)
     known = CHOICES.get(key)
     if known is None:
-        table = np.stack([np.asarray(drive, float), np.asarray(fixed, float),
-                          np.asarray(temperature_K, float), np.asarray(factor, float)], axis=1)
+        if not (visible_A > 0 and max_A > 0):
+            raise InputError(None, "visible and maximum currents must be positive")
+        fixed = np.full(corners.count, extra_ohm)
+        temperature_K = np.asarray(corners.temperature_K, float)
+        factor = np.asarray(corners.resistor_factor, float)
+        table = np.stack([drive, fixed, temperature_K, factor], axis=1)
         _, sel = np.unique(table, axis=0, return_index=True)
-        known = choose_series_resistor(np.asarray(drive)[sel], np.asarray(fixed)[sel], stages,
-                                       np.asarray(temperature_K)[sel], None, None,
-                                       visible_A, max_A, candidate_factor=np.asarray(factor)[sel])
+        current = _candidate_currents(stages, stages_key, table[sel])
+        known = _verdict(current, visible_A, max_A)
         CHOICES.put(key, known)
     return known
+
+
+def _candidate_currents(stages, stages_key, rows: np.ndarray) -> np.ndarray:
+    """The string's current at each row (drive V, fixed ohm, temperature K, resistor factor)
+    with nothing added (column 0) and with each candidate added, scaled by the row's factor:
+    the (rows x 1 + candidates) table choose_series_resistor solves.
+
+    Branches on other rails share most of their corners (the same temperatures and
+    tolerances, and often the same drive), so each row is solved once per set of diodes and
+    remembered. solve_string solves every element on its own (its Newton iteration moves
+    each element until that element converges), so a row's currents are the same whatever
+    rows it is solved with."""
+    keys = [(stages_key, row.tobytes()) for row in rows]
+    known = [ROW_CURRENTS.get(k) for k in keys]
+    missing = [k for k, found in enumerate(known) if found is None]
+    if missing:
+        added = np.concatenate(([0.0], preferred.values_between(_LOWEST_OHM, _HIGHEST_OHM, _SERIES)))
+        v, r, t, factor = (rows[missing, c] for c in range(4))
+        sol = solve_string(v[:, None], r[:, None] + added[None, :] * factor[:, None], stages,
+                           t[:, None])
+        for k, currents in zip(missing, sol.current_A):
+            known[k] = currents
+            ROW_CURRENTS.put(keys[k], currents)
+    return np.stack(known)
+
+
+def _verdict(current: np.ndarray, visible_current_A: float, max_current_A: float):
+    """choose_series_resistor's verdict from its table of currents (every corner both a low
+    and a high one), as it words it (drc.solve; keep the two alike)."""
+    series = _SERIES
+    candidates = preferred.values_between(_LOWEST_OHM, _HIGHEST_OHM, series)
+    low_current = np.min(current, axis=0)
+    high_current = np.max(current, axis=0)
+    fits = (low_current[1:] >= visible_current_A) & (high_current[1:] <= max_current_A)
+    acceptable = tuple(float(c) for c, ok in zip(candidates, fits) if ok)
+    best = None
+    if acceptable:
+        best = float(candidates[int(np.argmax(np.where(fits, high_current[1:], -np.inf)))])
+        verdict = "ok"
+        message = (f"{len(acceptable)} {series.upper()} values fit, "
+                   f"{preferred.format_resistance(acceptable[0])} to "
+                   f"{preferred.format_resistance(acceptable[-1])}; "
+                   f"{preferred.format_resistance(best)} gives the most current")
+    elif low_current[0] < visible_current_A:
+        verdict = "too-dim"
+        message = (f"even with no resistor added the least current is {low_current[0]:.3g} A, "
+                   f"below the visible {visible_current_A:.3g} A")
+    elif high_current[-1] > max_current_A:
+        verdict = "too-bright"
+        message = (f"even {preferred.format_resistance(candidates[-1])} lets "
+                   f"{high_current[-1]:.3g} A through, above the maximum {max_current_A:.3g} A")
+    else:
+        verdict = "no-value-fits"
+        message = ("no series value keeps the current between the visible and the maximum "
+                   "at every corner")
+    return SeriesResistorChoice(verdict, message, acceptable, best, tuple(candidates),
+                                low_current[1:], high_current[1:], float(low_current[0]))
 
 LITHIUM_CAUTION = ("Lithium cells shorted or reversed can overheat, vent or burn: protect the "
                    "battery path and follow the cell maker's datasheet.")
@@ -40,17 +113,37 @@ EYE_CAUTION = ("Infrared, ultraviolet and high-brightness LEDs have eye-safety l
 
 def worst_low(values: np.ndarray) -> int:
     """The corner index where a per-corner value is least."""
+    if isinstance(values, np.ndarray):        # the method: np.argmin's dispatch costs more
+        return int(values.argmin())
     return int(np.argmin(values))
 
 
 def worst_high(values: np.ndarray) -> int:
     """The corner index where a per-corner value is greatest."""
+    if isinstance(values, np.ndarray):
+        return int(values.argmax())
     return int(np.argmax(values))
 
 
+_DESCRIBED: dict = {}          # (corner set's serial, index) -> Corners.describe(index)
+
+
 def corner(design: Design, index: int) -> dict:
-    """A corner as the report gives it: {"supply_V": {...}, "temperature_C": ...}."""
-    return design.corners.describe(index)
+    """A corner as the report gives it: {"supply_V": {...}, "temperature_C": ...}.
+
+    Each finding gets a dict of its own; the description is worked out once per corner of
+    a corner set (its serial is unique in the process, and a Corners is fixed for its life)."""
+    corners = design.corners
+    serial = getattr(corners, "serial", None)
+    if serial is None:
+        return corners.describe(index)
+    key = (serial, int(index))
+    found = _DESCRIBED.get(key)
+    if found is None:
+        found = corners.describe(index)
+        if len(_DESCRIBED) < 65536:
+            _DESCRIBED[key] = found
+    return {k: dict(v) if isinstance(v, dict) else v for k, v in found.items()}
 
 
 def corner_words(design: Design, index: int) -> str:
@@ -78,14 +171,31 @@ def _stages(design: Design, branch: Branch):
             for st in branch.stages]
 
 
+_DROPS: dict = {}        # (each stage's first diode and size, current, temperature) -> volts
+
+
+def _string_drop(stages, current_A: float, t: float) -> float:
+    """The diodes' share of needed_voltage: each stage's forward voltage at its share of
+    `current_A`, summed in order. Repeated cells ask for the same few, so each distinct
+    one is worked out once (a positive current: -0.0 and 0.0 would share a key)."""
+    key = (tuple((stage[0], len(stage)) for stage in stages), current_A, t)
+    found = _DROPS.get(key) if current_A > 0 else None
+    if found is None:
+        found = 0.0
+        for stage in stages:
+            found += float(voltage_at_current(stage[0], current_A / len(stage), t))
+        if current_A > 0 and len(_DROPS) < 65536:
+            _DROPS[key] = found
+    return found
+
+
 def needed_voltage(design: Design, branch: Branch, current_A: float, index: int) -> float:
     """The drive voltage the string needs to carry `current_A` at corner `index`."""
     t = float(design.corners.temperature_K[index])
-    total = 0.0
-    for stage in _stages(design, branch):
-        total += float(voltage_at_current(stage[0], current_A / len(stage), t))
-    _, resistance = branch.on_drive()
-    return total + current_A * float(resistance[index])
+    total = _string_drop(_stages(design, branch), current_A, t)
+    # branch.on_drive()'s resistance at this one corner (it adds the two at every corner)
+    resistance = branch.series_resistance_ohm[index] + branch.phases[branch.lit_phase].extra_resistance_ohm
+    return total + current_A * float(resistance)
 
 
 def series_resistor_advice(design: Design, branch: Branch, led: Led, goal: str = "both") -> str:
@@ -97,29 +207,29 @@ def series_resistor_advice(design: Design, branch: Branch, led: Led, goal: str =
     phase = branch.phases[branch.lit_phase]
     share = max(phase.share, 1e-9)
     drive = phase.drive_V
-    fixed = np.full(design.corners.count, phase.extra_resistance_ohm)
-    choice = _choose(drive, fixed, _stages(design, branch), design.corners.temperature_K,
-                     led.visible_current_A / share, led.max_current_A, design.corners.resistor_factor)
+    stages = _stages(design, branch)
+    choice = _choose(design.corners, drive, phase.extra_resistance_ohm, stages,
+                     led.visible_current_A / share, led.max_current_A)
     have = ", ".join(f"{r.name} {preferred.format_resistance(r.value)}" for r in branch.resistors) or "no resistor"
     if choice.verdict == "ok":
         low = choice.acceptable_ohm[0]
         high = choice.acceptable_ohm[-1]
         return (f"use {preferred.format_resistance(choice.best_ohm)} (E24, IEC 60063) in place of {have}: "
-                f"it keeps {led.name} above {format_si(led.visible_current_A, 'A')} at every corner and "
-                f"under {format_si(led.max_current_A, 'A')}; any E24 value from "
+                f"it keeps {led.name} above {format_quantity(led.visible_current_A, 'A')} at every corner and "
+                f"under {format_quantity(led.max_current_A, 'A')}; any E24 value from "
                 f"{preferred.format_resistance(low)} to {preferred.format_resistance(high)} does")
     if choice.verdict == "too-dim" and goal == "max":
-        cap = _choose(drive, fixed, _stages(design, branch), design.corners.temperature_K,
-                      1e-12, led.max_current_A, design.corners.resistor_factor)
+        cap = _choose(design.corners, drive, phase.extra_resistance_ohm, stages,
+                      1e-12, led.max_current_A)
         if cap.acceptable_ohm:
             return (f"use at least {preferred.format_resistance(cap.acceptable_ohm[0])} (E24, IEC 60063) "
-                    f"in place of {have} to stay under {format_si(led.max_current_A, 'A')} at the high "
+                    f"in place of {have} to stay under {format_quantity(led.max_current_A, 'A')} at the high "
                     f"corner; no value does that and also keeps it visible at the low corner "
                     f"(see led-headroom)")
     if choice.verdict == "too-dim":
         best = choice.zero_added_low_current_A * share
         lift = needed_voltage(design, branch, led.visible_current_A / share, worst_low(drive))
-        return (f"no series resistor can: even with none, {led.name} gets {format_si(best, 'A')} at the "
+        return (f"no series resistor can: even with none, {led.name} gets {format_quantity(best, 'A')} at the "
                 f"low corner; lift it with a charge pump, choose a lower-voltage colour (red or amber "
                 f"drop about 1.8 V at 1 mA), or feed it from a regulated rail of at least {lift:.2f} V")
     if choice.verdict == "too-bright":
@@ -149,7 +259,6 @@ def schottky_params():
 
 def flicker_of_branch(design: Design, branch: Branch, led: Led):
     """(frequency Hz, modulation percent) of an LED's light, or None when it is steady."""
-    from drc.flicker import modulation_percent
     if branch.drive == "pump" and branch.pump_region is not None and branch.pump_region.result is not None:
         r = branch.pump_region.result
         pins = [p for p in branch.pump_region.pins if p.drive == "toggle"]

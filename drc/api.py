@@ -71,7 +71,7 @@ from dataclasses import dataclass, field
 from typing import Any, Iterable, Mapping, Protocol
 
 from drc.errors import Location
-from drc.units import format_si as format_quantity
+from drc.units import format_si
 
 API_VERSION = 1
 SEVERITIES = ("error", "warning", "note")
@@ -93,6 +93,28 @@ _ADVICE = ("worst_low", "worst_high", "corner", "corner_words", "branch_cautions
            "needed_voltage", "series_resistor_advice", "rerun_pump", "schottky_params",
            "flicker_of_branch", "diode_params_of", "forward_voltage", "saturation_current_at",
            "is_preferred", "nearest_preferred", "is_schottky")
+
+
+_FORMATTED: dict = {}      # (value, unit, digits) -> text, for format_quantity
+
+
+def format_quantity(value: float, unit: str, digits: int = 3) -> str:
+    """A float in SI base units as text with an engineering prefix, as the report writes it
+    (drc.units.format_si): format_quantity(0.0005, "A") gives "500 µA".
+
+    A board of repeated cells names the same few values in thousands of findings, so each
+    distinct (value, unit, digits) is formatted once. Only plain non-zero floats are kept:
+    0.0 and -0.0 are one key but print differently, and a float subclass might print
+    otherwise."""
+    if type(value) is not float or value == 0.0 or type(digits) is not int:
+        return format_si(value, unit, digits)
+    key = (value, unit, digits)
+    text = _FORMATTED.get(key)
+    if text is None:
+        text = format_si(value, unit, digits)
+        if len(_FORMATTED) < 65536:
+            _FORMATTED[key] = text
+    return text
 
 
 def __getattr__(name):

@@ -18,7 +18,7 @@ PHOTOSENSITIVE_BAND_HZ = (3.0, 60.0)
 def modulation_percent(light) -> float:
     """Percent modulation of a waveform of light (or current) over one period."""
     w = np.asarray(light, dtype=float)
-    hi, lo = float(np.max(w)), float(np.min(w))
+    hi, lo = float(w.max()), float(w.min())
     if hi + lo <= 0:
         return 0.0
     return 100.0 * (hi - max(lo, 0.0)) / (hi + max(lo, 0.0))

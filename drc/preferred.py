@@ -14,6 +14,7 @@ scale), as the series are geometric.
 
 from __future__ import annotations
 
+import functools
 import math
 
 from drc.errors import InputError
@@ -75,11 +76,20 @@ def _value(mantissa: float, decade: int) -> float:
     return float(f"{mantissa * 10.0 ** decade:.12g}")
 
 
-def _around(value: float, name: str) -> list[float]:
+@functools.lru_cache(maxsize=1024)
+def _decade(key: str, decade: int) -> tuple[float, ...]:
+    """One decade of a series (`key` as in _SERIES), ascending. Cached: a fix's search asks
+    for the same few decades thousands of times, and each value costs a round trip through
+    text; the result depends on nothing but the two arguments."""
+    return tuple(_value(m, decade) for m in _SERIES[key])
+
+
+def _around(value: float, name: str) -> tuple[float, ...]:
     """Series values from the decade below to the decade above `value`, ascending."""
     decade, _ = _decade_and_mantissa(value)
-    mantissas = series(name)
-    return [_value(m, d) for d in (decade - 1, decade, decade + 1) for m in mantissas]
+    series(name)                              # an unknown name is an error, as ever
+    key = str(name).strip().upper()
+    return _decade(key, decade - 1) + _decade(key, decade) + _decade(key, decade + 1)
 
 
 def nearest(value: float, name: str = "E24") -> float:
@@ -147,6 +157,13 @@ def format_resistance(ohm: float) -> str:
         raise InputError(None, f"resistance must be finite and not negative, not {ohm!r}")
     if v == 0:
         return "0 Ω"
+    return _resistance_text(v)
+
+
+@functools.lru_cache(maxsize=4096)
+def _resistance_text(v: float) -> str:
+    """format_resistance of a finite v > 0. Cached: the fixes name the same few values for
+    every finding of a repeated cell; the text depends on v alone."""
     rounded = float(f"{v:.3g}")
     for scale, prefix in _PREFIXES:
         if rounded >= scale:

@@ -66,27 +66,34 @@ def _lights(design, pump, led, **changes):
     return float(np.min(r.load_average_A))
 
 
-_FIXES = {}       # pump cell signature -> the fix's words with the names as placeholders
+# (pump cell signature, pumping capacitor, visible current, nominal temperature) -> what
+# _work_out found: it depends on nothing else.
+_FIXES = {}
 
 
 def _fix(design, pump, led):
-    key = pump.region.signature
-    names = [led.name] + [e.name for e in pump.elements]
-    if key is not None and key in _FIXES:
-        text = _FIXES[key]
-        for k, name in enumerate(names):
-            text = text.replace(f"\x00{k}\x00", name)
-        return text
-    text = _work_out(design, pump, led)
-    if key is not None:
-        template = text
-        for k, name in sorted(enumerate(names), key=lambda kn: -len(kn[1])):
-            template = template.replace(name, f"\x00{k}\x00")
-        _FIXES[key] = template
-    return text
+    """The fix's words, worked out once per distinct pump cell. Only the Schottky advice
+    names parts; it is kept as the diodes' places in the pump, so that each cell's finding
+    names its own."""
+    key = ((pump.region.signature, pump.capacitors[0].value, led.visible_current_A,
+            float(design.corners.temperature_K[design.corners.nominal]))
+           if pump.region.signature is not None else None)
+    found = _FIXES.get(key) if key is not None else None
+    if found is None:
+        found = _work_out(design, pump, led)
+        if key is not None:
+            _FIXES[key] = found
+    if isinstance(found, str):
+        return found
+    places, low = found
+    diodes = [pump.charge_diode] + pump.transfer_diodes
+    return (f"Schottky diodes (about 0.3 V at 1 mA) for {', '.join(diodes[k].name for k in places)} "
+            f"give {format_quantity(low, 'A')} at the low corner (the model re-run)")
 
 
 def _work_out(design, pump, led):
+    """The first change the model shows to light the LED at every corner, in words; or,
+    for Schottky diodes, (their places in the pump, the LED's least current with them)."""
     tried = []
     present = pump.capacitors[0].value
     larger = [v for v in preferred.values_between(present * 1.5, present * 10.5, "E6")][:4]
@@ -108,13 +115,13 @@ def _work_out(design, pump, led):
                 return (f"toggling the pins at {frequency * scale:g} Hz in place of {frequency:g} Hz "
                         f"(phases of {0.5e3 / (frequency * scale):g} ms) gives {format_quantity(low, 'A')} "
                         "at the low corner (the model re-run); check flicker and the pins' surge again")
-    silicon = [d for d in ([pump.charge_diode] + pump.transfer_diodes)
-               if d is not None and not is_schottky(design, d)]
+    diodes = [pump.charge_diode] + pump.transfer_diodes
+    silicon = [k for k, d in enumerate(diodes) if d is not None and not is_schottky(design, d)]
     if silicon:
-        low = _lights(design, pump, led, diode_override={d.key: schottky_params() for d in silicon})
+        low = _lights(design, pump, led,
+                      diode_override={diodes[k].key: schottky_params() for k in silicon})
         tried.append(f"Schottky diodes: {format_quantity(low or 0, 'A')}")
         if low is not None and low >= led.visible_current_A:
-            return (f"Schottky diodes (about 0.3 V at 1 mA) for {', '.join(d.name for d in silicon)} give "
-                    f"{format_quantity(low, 'A')} at the low corner (the model re-run)")
+            return silicon, low            # the places of the diodes to change (see _fix)
     return ("no change the model tried lights it at every corner ("
             + "; ".join(tried) + "): choose a lower-voltage colour, or a regulated boost converter")

@@ -40,8 +40,8 @@ def check(design, settings):
             i = worst_low(current)
             if current[i] >= led.visible_current_A:
                 continue
-            share = branch.phases[branch.lit_phase].share
-            drive_V, _ = branch.on_drive()
+            lit = branch.phases[branch.lit_phase]        # as branch.on_drive() reads it
+            share, drive_V = lit.share, lit.drive_V
             if branch.sink_pin is not None and branch.pin is None:
                 rail = branch.supply.label if branch.supply is not None else "its rail"
                 what_gives = f"{rail}, into pin {branch.sink_pin.label} held low, gives"

@@ -32,7 +32,9 @@ RULE = Rule(id="pin-overcurrent", severity="error",
                      "capacitor charging law v(t) = V(1 - exp(-t/RC))"))
 
 
-_OUTCOMES = {}      # (pump cell signature, pin index) -> (ohm, before, after) or None
+# (pump cell signature, pin index, first value tried, pin limit) -> (ohm, LED current
+# after) or None: what _search finds depends on nothing else.
+_OUTCOMES = {}
 
 
 def check(design, settings):
@@ -110,7 +112,8 @@ def _fix(design, pin, pumped, current, surge=False):
     before = branch.current_A[led.name]
     low = worst_low(before)
     index = [p.label for p in region.pins].index(pin.label) if pin.label in [p.label for p in region.pins] else -1
-    key = (region.signature, index) if region.signature is not None else None
+    key = ((region.signature, index, value, pin.max_current_A)
+           if region.signature is not None else None)
     if key is not None and key in _OUTCOMES:
         outcome = _OUTCOMES[key]
     else:

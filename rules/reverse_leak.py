@@ -36,6 +36,7 @@ RULE = Rule(id="reverse-leak", severity="warning",
 
 def check(design, settings):
     share_limit = float(settings.get("leak_share", 0.1))
+    hot = _HotCorners(design) if design.pumps else None
     for pump in design.pumps:
         region = pump.region
         result = pump.result
@@ -52,7 +53,7 @@ def check(design, settings):
         pumped_nets = {c.nodes[0] if c.nodes[1] in {p.net for p in region.pins} else c.nodes[1]
                        for c in pump.capacitors} | {pump.output_net}
         yield from _clamp_paths(design, pump, region, result, pumped_nets)
-        yield from _leaky_schottky(design, pump, region, result, share_limit)
+        yield from _leaky_schottky(design, pump, region, result, share_limit, hot)
 
 
 def _peak(result, net, design):
@@ -113,29 +114,46 @@ def _clamp_paths(design, pump, region, result, pumped_nets):
                               fix=f"remove the path from {node} to {rail.label}, or put a diode in it")
 
 
-def _leaky_schottky(design, pump, region, result, share_limit):
+class _HotCorners:
+    """The hot end of the temperature range, and each diode's Schottky test and reverse
+    leakage there: the same for every pump of one design, so worked out once per check
+    (the leakage once per distinct diode model)."""
+
+    def __init__(self, design):
+        temperature_C = design.corners.temperature_C
+        self.index = worst_high(temperature_C)
+        self.temperature_C = float(temperature_C[self.index])
+        self.rows = np.flatnonzero(temperature_C == temperature_C[self.index])
+        self.t_hot = float(design.corners.temperature_K[self.index])
+        self.t_nom = float(design.corners.temperature_K[design.corners.nominal])
+        self.leaks = {}          # DiodeParams -> its leakage at the hot corner, or None
+
+    def schottky_leak(self, params):
+        """A Schottky's saturation current at the hot corner; None for another diode."""
+        if params not in self.leaks:
+            schottky = float(forward_voltage(params, 1e-3, self.t_nom)) < 0.45
+            self.leaks[params] = float(saturation_current_at(params, self.t_hot)) if schottky else None
+        return self.leaks[params]
+
+
+def _leaky_schottky(design, pump, region, result, share_limit, hot):
     led = region.leds[0]
     load = result.load_average_A
-    hot = worst_high(design.corners.temperature_C)
-    t_hot = float(design.corners.temperature_K[hot])
-    t_nom = float(design.corners.temperature_K[design.corners.nominal])
     for d in [pump.charge_diode] + list(pump.transfer_diodes):
         if d is None:
             continue
-        params = diode_params_of(design, d)
-        if float(forward_voltage(params, 1e-3, t_nom)) >= 0.45:
+        leak = hot.schottky_leak(diode_params_of(design, d))
+        if leak is None:
             continue                       # not a Schottky
-        leak = float(saturation_current_at(params, t_hot))
         reverse = result.diode_reverse_max_V.get(d.name)
         if reverse is None or float(np.max(reverse)) <= 0:
             continue
-        at_hot = design.corners.temperature_C == design.corners.temperature_C[hot]
-        i = int(np.flatnonzero(at_hot)[np.argmin(load[at_hot])])
+        i = int(hot.rows[np.argmin(load[hot.rows])])
         share = leak / max(float(load[i]), 1e-15)
         if share <= share_limit:
             continue
         yield finding(d, f"Schottky {d.name} leaks about {format_quantity(leak, 'A')} in reverse at "
-                         f"{float(design.corners.temperature_C[hot]):g} °C, {share * 100:.0f} % of "
+                         f"{hot.temperature_C:g} °C, {share * 100:.0f} % of "
                          f"{led.name}'s average current there",
                       elements=[d.name, pump.id, led.name], nets=list(d.nodes), corner=corner(design, i),
                       values={"leak_A": leak, "led_current_A": float(load[i]), "share": share},
