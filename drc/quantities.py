@@ -18,7 +18,7 @@ from typing import Any
 import pint
 
 from drc.errors import InputError, Location
-from drc.units import ureg
+from drc.units import full_registry, ureg
 
 
 @dataclass(frozen=True, slots=True)
@@ -62,9 +62,9 @@ def _describe(value: Any) -> str:
     return f"a {type(value).__name__}"
 
 
-def _kind_of(dimensionality: Any) -> _Kind | None:
+def _kind_of(dimensionality: Any, registry: pint.UnitRegistry) -> _Kind | None:
     for kind in KINDS.values():
-        if kind.unit and ureg.parse_units(kind.unit).dimensionality == dimensionality:
+        if kind.unit and registry.parse_units(kind.unit).dimensionality == dimensionality:
             return kind
     return None
 
@@ -90,16 +90,29 @@ def parse_quantity(text: Any, expected: str, where: Location | None, key: str) -
         raise InputError(where, f"{key}: {text!r} has no unit; {hint}")
     if unit_text == "%":
         unit_text = "percent"
+    # drc's own small registry reads the usual spellings and gives the same float as pint's
+    # full one (drc/units.txt). Anything it cannot read or refuses is read again by the full
+    # registry, so a rarer unit still works and every error reads as pint's full registry has it.
     try:
-        units = ureg.parse_units(unit_text)
+        return _convert(ureg, number_text, unit_text, text, kind, expected, where, key, hint)
+    except Exception:
+        return _convert(full_registry(), number_text, unit_text, text, kind, expected, where,
+                        key, hint)
+
+
+def _convert(registry: pint.UnitRegistry, number_text: str, unit_text: str, text: str,
+             kind: _Kind, expected: str, where: Location | None, key: str, hint: str) -> float:
+    """parse_quantity's reading of number and unit with one pint registry."""
+    try:
+        units = registry.parse_units(unit_text)
     except (pint.UndefinedUnitError, pint.errors.DefinitionSyntaxError, ValueError,
             AttributeError, TypeError, SyntaxError) as error:
         raise InputError(where, f"{key}: unknown unit {unit_text!r} in {text!r} ({error}); "
                                 f"{hint}") from None
-    quantity = ureg.Quantity(float(number_text), units)
-    target = ureg.parse_units(kind.unit) if kind.unit else ureg.dimensionless
+    quantity = registry.Quantity(float(number_text), units)
+    target = registry.parse_units(kind.unit) if kind.unit else registry.dimensionless
     if quantity.dimensionality != target.dimensionality:
-        got = _kind_of(units.dimensionality)
+        got = _kind_of(units.dimensionality, registry)
         got_words = (f"{got.unit_words} ({got.noun})" if got is not None
                      else f"{units:~P} ({units.dimensionality})" if not quantity.dimensionless
                      else "a plain number")
