@@ -387,6 +387,8 @@ class Params:
 def _count(scope: Scope, memo: dict, chain: list, depth: int = 64) -> int:
     """Elements a scope flattens to, counted from the definitions alone (black boxes count 1);
     instances nested deeper than `depth` are refused (the flattening recurses per level)."""
+    if not any(s.subckts for s in _scope_chain(scope)):
+        return len(scope.elements)      # no .subckt in reach: every card, X lines too, is one
     total = 0
     for card in scope.elements:
         if card.name.text[0] not in "Xx":
@@ -413,6 +415,13 @@ def _count(scope: Scope, memo: dict, chain: list, depth: int = 64) -> int:
         chain.pop()
         total += memo[ident]
     return total
+
+
+def _scope_chain(scope: Scope | None):
+    """A scope and the scopes around it, innermost first (where find_subckt looks)."""
+    while scope is not None:
+        yield scope
+        scope = scope.parent
 
 
 def expand(path: str | Path, limits: Limits | None = None) -> FlatDesign:
@@ -527,16 +536,17 @@ class _Flattener:
             name = shown_prefix + head.text
             nodes = []
             for w in card.nodes:
-                key = net_of.get(w.text)
+                node_text = w.text
+                key = net_of.get(node_text)
                 if key is None:
-                    key = net_of[w.text] = net(w, prefix, ports)
+                    key = net_of[node_text] = net(w, prefix, ports)
                 nodes.append(key)
             nodes = tuple(nodes)
             fields = card.fields
             if letter == "X":
                 self._instance(card, scope, prefix, shown_prefix, ports, params, instances, nodes)
                 continue
-            location = new(Location, (head.path, head.line, head.column))
+            location = new(Location, head[1:])           # a Word is (text, path, line, column)
             value = value_text = model = source = None
             control = ()
             params_of = None
@@ -626,8 +636,8 @@ class _Flattener:
                 kind = f.name.text.lower()
                 if kind not in WAVEFORMS:
                     raise InputError(f.location, f"unknown source function '{f.name.text}'")
-                args = tuple(ex._number(a, params, f"{kind.upper()} argument")
-                             for a in f.args if type(a) is not Assign)
+                what = f"{kind.upper()} argument"
+                args = tuple(ex._number(a, params, what) for a in f.args if type(a) is not Assign)
                 waveform = Waveform(kind, args)
                 k += 1
                 continue
@@ -647,8 +657,9 @@ class _Flattener:
             elif word in WAVEFORMS:
                 args = []
                 k += 1
+                what = f"{word.upper()} argument"
                 while k < n and _is_value(positional[k]):
-                    args.append(ex._number(positional[k], params, f"{word.upper()} argument"))
+                    args.append(ex._number(positional[k], params, what))
                     k += 1
                 waveform = Waveform(word, tuple(args))
             elif dc is None and waveform is None and _is_value(f):
@@ -656,7 +667,7 @@ class _Flattener:
                 k += 1
             else:
                 raise InputError(f.location, f"{card.name.text}: unexpected '{_shown(f)}' in a source")
-        return Source(dc=dc, waveform=waveform, ac=ac)
+        return Source(dc, waveform, ac)
 
     def _instance(self, card, scope, prefix, shown_prefix, ports, params, instances, nodes):
         sub_word = card.fields[0]

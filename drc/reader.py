@@ -3,7 +3,9 @@
 The grammar (grammar/netlist.lark) is the definition of the language. Most cards of an
 exported schematic are plain one-line cards (`R12 a b 4.7k`); for those a fast path splits
 the line on white space and gives exactly the result the grammar gives (a differential test,
-tests/test_reader_fastpath.py, holds it to that). Two more fast paths read cards of words,
+tests/test_reader_fastpath.py, holds it to that); `words_card` does the same for such a card
+spread over `+` continuation lines, and for one that ends in a call such as PULSE(...).
+Two more fast paths read cards of words,
 calls and key=value assignments, on one line (`simple_card`) or over `+` continuation lines
 (`continued_card`). Every other card (braces, quotes, comments inside it) is parsed by the
 grammar, which is built, with lark imported, only when a file has such a card.
@@ -201,8 +203,57 @@ def continued_card(lines: list[str], first: int, last: int, path: str) -> Card |
 
 def _simple_tokens(line: str, start: int, path: str, line_number: int) -> list[Word]:
     """Each token from `start` on as a Word (the punctuation too); the commas are left out."""
-    return [_new(Word, (m.group(), path, line_number, m.start() + 1))
-            for m in _SIMPLE_TOKEN.finditer(line, start) if m.group() != ","]
+    return [_new(Word, (text, path, line_number, m.start() + 1))
+            for m in _SIMPLE_TOKEN.finditer(line, start) if (text := m.group()) != ","]
+
+
+def words_card(lines: list[str], first: int, last: int, path: str) -> ElementCard | None:
+    """The fast path for an element card of words that may end in one call of words, such as
+    `VP1 pa 0 PULSE(0 1.8 0 10n 10n 0.25m 0.5m)`, on one line or over `+` lines (lines[first]
+    to lines[last], 0-based, blank and comment lines between); None for any other card.
+
+    Each line is split on white space as plain_card splits one (a '+' and the line end
+    separate words too). The call's '(' must follow its name directly and its ')' must end
+    the card: any other use of parentheses goes to simple_card or continued_card."""
+    line = lines[first]
+    stripped = line.lstrip(" \t\f")
+    if not stripped or stripped[0] not in _ASCII_LETTERS or not _CALL_CLEAR(stripped):
+        return None
+    words = _words(line, len(line) - len(stripped), path, first + 1)
+    for k in range(first + 1, last + 1):
+        line = lines[k]
+        stripped = line.lstrip(" \t\f")
+        if not stripped or stripped[0] != "+":
+            if stripped and stripped[0] not in "*;":
+                return None
+            continue                                   # a blank or comment line between
+        if not _CALL_CLEAR(stripped):
+            return None
+        start = len(line) - len(stripped) + 1          # after the '+'
+        words += [_new(Word, (m.group(), path, k + 1, m.start() + 1))
+                  for m in _TOKEN.finditer(line, start)]
+    opening = [n for n, w in enumerate(words) if "(" in w.text]
+    if not opening:
+        if any(")" in w.text for w in words):
+            return None
+        return _plain_element(words)
+    n = opening[0]
+    call = words[n]
+    at = call.text.find("(")
+    closing = [w for w in words if ")" in w.text]
+    if (len(opening) != 1 or n == 0 or at == 0 or call.text.count("(") != 1
+            or len(closing) != 1 or closing[0] is not words[-1]
+            or words[-1].text.find(")") != len(words[-1].text) - 1):
+        return None
+    name = _new(Word, (call.text[:at], path, call.line, call.column))
+    # the call's arguments: what follows '(' in its word, the words after it, and what
+    # stands before ')' in the last word
+    pieces = [_new(Word, (call.text[at + 1:], path, call.line, call.column + at + 1)),
+              *words[n + 1:]]
+    end = pieces[-1]
+    pieces[-1] = _new(Word, (end.text[:-1], path, end.line, end.column))
+    args = tuple(w for w in pieces if w.text)
+    return element_card(words[0], (*words[1:n], Call(name, args)))
 
 
 def _simple_tokens_card(tokens: list[Word]) -> Card | None:
@@ -278,6 +329,8 @@ def _simple_fields(tokens, k):
 _NOT_PLAIN = frozenset("(){}'\"=,;$" "\n\v\r\x1c\x1d\x1e\x1f\x85\xa0\u1680\u2000\u2001\u2002"
                        "\u2003\u2004\u2005\u2006\u2007\u2008\u2009\u200a\u2028\u2029\u202f"
                        "\u205f\u3000")
+# What words_card may not meet: the same, parentheses apart.
+_CALL_CLEAR = (_NOT_PLAIN - frozenset("()")).isdisjoint
 # element letters (either case) -> node count; X and unknown letters go through element_card
 _COUNTS = {**{k.lower(): v for k, v in NODE_COUNTS.items()}, **NODE_COUNTS}
 
@@ -335,8 +388,8 @@ def read_text(text: str, path: str, has_title: bool = True) -> ParsedFile:
             if count is None or len(words) <= count:
                 append(element_card(words[0], tuple(words[1:])))
             else:
-                append(new(ElementCard, (words[0], tuple(words[1:count + 1]),
-                                         tuple(words[count + 1:]))))
+                words = tuple(words)
+                append(new(ElementCard, (words[0], words[1:count + 1], words[count + 1:])))
             i = j                # the blank and comment lines after it are skipped too
             continue
         if first == ".":
@@ -353,7 +406,12 @@ def read_text(text: str, path: str, has_title: bool = True) -> ParsedFile:
                                    "\n".join(lines[i:end + 1])))
                 i = end + 1
                 continue
-        card = simple_card(line, path, i + 1) if last == i else continued_card(lines, i, last, path)
+        card = words_card(lines, i, last, path)
+        if card is None:
+            if last == i:
+                card = simple_card(line, path, i + 1)
+            else:
+                card = continued_card(lines, i, last, path)
         append(card if card is not None else parse_card("\n".join(lines[i:last + 1]), path, i))
         i = j
     return ParsedFile(path, title, cards, lines)
