@@ -105,9 +105,13 @@ def _convert(registry: pint.UnitRegistry, number_text: str, unit_text: str, text
     """parse_quantity's reading of number and unit with one pint registry."""
     try:
         units = registry.parse_units(unit_text)
-    except (pint.UndefinedUnitError, pint.errors.DefinitionSyntaxError, ValueError,
-            AttributeError, TypeError, SyntaxError) as error:
-        raise InputError(where, f"{key}: unknown unit {unit_text!r} in {text!r} ({error}); "
+    except Exception as error:
+        # pint's unit parser raises many kinds for a malformed expression ("V/" an
+        # AssertionError, "(V" a tokenizer error): each is one unreadable unit to the user
+        reason = str(error) if isinstance(error, (pint.UndefinedUnitError,
+                                                  pint.errors.DefinitionSyntaxError)) \
+            else "not a unit expression"
+        raise InputError(where, f"{key}: unknown unit {unit_text!r} in {text!r} ({reason}); "
                                 f"{hint}") from None
     quantity = registry.Quantity(float(number_text), units)
     target = registry.parse_units(kind.unit) if kind.unit else registry.dimensionless

@@ -172,6 +172,11 @@ def test_millivolts_are_thousandths(value):
     ("3 V", "fraction", ["range", "wants percent", "got volts"]),
     ("1.8", "voltage", ["range", "no unit", '"1.8 V"']),
     ("1.8 volz", "voltage", ["range", "unknown unit 'volz'"]),
+    # malformed unit expressions: pint's parser raised AssertionError / TokenError for these
+    ("3 V/", "voltage", ["range", "unknown unit 'V/'", "not a unit expression"]),
+    ("3 (V", "voltage", ["range", "unknown unit '(V'"]),
+    ("3 V)", "voltage", ["range", "unknown unit 'V)'"]),
+    ("3 V**", "voltage", ["range", "unknown unit 'V**'"]),
     ("volts", "voltage", ["range", "cannot read"]),
     ("5 delta_degC", "temperature", ["range", "difference"]),
     ("-300 degC", "temperature", ["below absolute zero"]),
