@@ -4,7 +4,8 @@
 
 For each N: generate bench/out/board_N.cir (bench/generate.py), time `ngspice -b` loading
 it with no analysis, and time `python -m drc check FILE --format json --output /dev/null`
-run from the repository root; each the median of 3 runs, wall-clock. Prints one table.
+run from the repository root (after one untimed run, with Python's bytecode cache on, as an
+installed drc has it); each the median of 3 runs, wall-clock. Prints one table.
 Targets: drc within 2x ngspice's load at 100k elements, and drc's microseconds per element
 at 100k within 1.3x that at 10k. See bench/README.md for what "load" means here.
 """
@@ -12,6 +13,7 @@ at 100k within 1.3x that at 10k. See bench/README.md for what "load" means here.
 from __future__ import annotations
 
 import json
+import os
 import shutil
 import statistics
 import subprocess
@@ -29,10 +31,20 @@ sys.path.insert(0, str(HERE))
 from generate import generate, config_text  # noqa: E402
 
 
-def timed(cmd: list[str], cwd: Path) -> tuple[float, subprocess.CompletedProcess]:
+def timed(cmd: list[str], cwd: Path, env: dict | None = None
+          ) -> tuple[float, subprocess.CompletedProcess]:
     start = time.perf_counter()
-    done = subprocess.run(cmd, cwd=cwd, capture_output=True, text=True)
+    done = subprocess.run(cmd, cwd=cwd, capture_output=True, text=True, env=env)
     return time.perf_counter() - start, done
+
+
+def installed_env() -> dict:
+    """The environment with Python's bytecode cache on, as an installed drc runs: pip
+    compiles an install's modules, so a user's `drc check` does not recompile its sources.
+    A PYTHONDONTWRITEBYTECODE left in the shell would make every timed run pay that."""
+    env = dict(os.environ)
+    env.pop("PYTHONDONTWRITEBYTECODE", None)
+    return env
 
 
 def ngspice_loaded(done: subprocess.CompletedProcess) -> str | None:
@@ -74,24 +86,26 @@ def time_ngspice(exe: str, deck: Path) -> tuple[float | None, str]:
 
 
 def time_drc(deck: Path) -> tuple[float | None, str]:
+    env = installed_env()
+    # one untimed run first: it writes the bytecode cache and shows that a report comes out
+    report = deck.with_suffix(".json")
+    subprocess.run([sys.executable, "-m", "drc", "check", str(deck), "--format", "json",
+                    "--output", str(report)], cwd=ROOT, capture_output=True, text=True, env=env)
+    try:
+        if json.loads(report.read_text()).get("schema") != "drc-report/1":
+            raise ValueError("no drc-report/1 schema key")
+    except (OSError, ValueError) as why:
+        return None, f"drc failed: its report is not a drc report ({why})"
     times = []
     for _ in range(RUNS):
         seconds, done = timed([sys.executable, "-m", "drc", "check", str(deck),
-                               "--format", "json", "--output", "/dev/null"], ROOT)
+                               "--format", "json", "--output", "/dev/null"], ROOT, env)
         # 0: clean, 1: findings at or above --fail-on; both are a finished check,
         # unless Python itself died (an import error also exits 1)
         if done.returncode not in (0, 1) or "Traceback" in done.stderr:
             last = (done.stderr.strip().splitlines() or [f"exit status {done.returncode}"])[-1]
             return None, f"drc failed: {last}"
         times.append(seconds)
-    report = deck.with_suffix(".json")  # one untimed run to see that a report comes out
-    done = subprocess.run([sys.executable, "-m", "drc", "check", str(deck), "--format", "json",
-                           "--output", str(report)], cwd=ROOT, capture_output=True, text=True)
-    try:
-        if json.loads(report.read_text()).get("schema") != "drc-report/1":
-            raise ValueError("no drc-report/1 schema key")
-    except (OSError, ValueError) as why:
-        return None, f"drc failed: its report is not a drc report ({why})"
     return statistics.median(times), ""
 
 
