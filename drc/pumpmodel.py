@@ -49,6 +49,7 @@ MAX_BDF2_STEP_RATIO = 2.0
 EDGE_STEP_SHARE = 1e-3       # the first step after an edge, as a share of the segment
 NEWTON_STEP_V = 1e-10         # or when a Newton update is this small (round-off)
 MAX_NEWTON_ITERATIONS = 60
+ROUND_OFF_ULPS = 8.0          # a residual within this many roundings of its terms is zero
 PREDICTOR_STEP_V = 0.02       # shooting updates below this use the linear predictor
 
 
@@ -359,16 +360,24 @@ class _Compiled:
         self.R = Ginv @ A.T                                                # (K, C, n, nd)
         self.P = np.einsum("kcij,kcj->kci", Ginv, seg_current[segment])    # (K, C, n)
         self.Z = A @ self.R                                                # (K, C, nd, nd)
+        self.Z_abs = np.abs(self.Z)
+        self.eye_nd = np.eye(nd)
         self.B1, self.B2 = A @ Q1, A @ Q2                                  # (K, C, nd, ncap)
         self.a = self.P @ A.T                                              # (K, C, nd)
         self.F1, self.F2 = D @ Q1, D @ Q2                                  # (K, C, ncap, ncap)
         self.H = D @ self.R                                                # (K, C, ncap, nd)
         self.e = self.P @ D.T                                              # (K, C, ncap)
+        # the same maps stacked, junctions' rows first: one product per step gives both
+        # the open-circuit junction voltages and the capacitors' next state
+        self.BF1 = np.concatenate([self.B1, self.F1], axis=2)              # (K, C, nd+ncap, ncap)
+        self.BF2 = np.concatenate([self.B2, self.F2], axis=2)
+        self.ae = np.concatenate([self.a, self.e], axis=2)                 # (K, C, nd+ncap)
         self.steps = K
 
     _PER_CORNER = ("Is", "nvt", "vcrit", "inv_nvt", "Is_over_nvt", "pin_G", "pin_level", "cap", "seg_current",
                    "voltage_bound")
-    _PER_STEP = ("Q1", "Q2", "R", "P", "Z", "B1", "B2", "a", "F1", "F2", "H", "e")
+    _PER_STEP = ("Q1", "Q2", "R", "P", "Z", "Z_abs", "B1", "B2", "a", "F1", "F2", "H", "e",
+                 "BF1", "BF2", "ae")
 
     def subset(self, idx: np.ndarray) -> "_Compiled":
         """The same network at the corners `idx` only."""
@@ -401,6 +410,44 @@ class _Compiled:
         from_reverse = nvt * np.log(np.maximum(vnew / nvt, 1e-300))
         return np.where(big, np.where(vold > 0, from_forward, from_reverse), vnew)
 
+    def _junctions(self, Z, Z_abs, voc, vj):
+        """One step's junction voltages: Newton on vj + Z i(vj) = voc from the guess vj.
+
+        Every corner takes the same iterations (the batch stops together), so that corners
+        which tie in the physics keep tying to the last bit and a worst corner stays the
+        first of its equals. The batch stops when every residual is below
+        NEWTON_RESIDUAL_V or below the round-off its own terms carry (see _round_off), or
+        when the largest update is below NEWTON_STEP_V. Without the round-off test a junction
+        feeding a node held only by GMIN_NODE_S (where Z is some 1e9 ohm) shows a residual of
+        pure rounding above NEWTON_RESIDUAL_V and kept the batch iterating to
+        MAX_NEWTON_ITERATIONS. Returns vj and the currents and conductances at it."""
+        i, g = self.diode_current(vj)
+        if not self.nd:
+            return vj, i, g
+        for _ in range(MAX_NEWTON_ITERATIONS):
+            residual = vj + np.einsum("cij,cj->ci", Z, i) - voc
+            size = np.abs(residual)
+            if size.max() < NEWTON_RESIDUAL_V:
+                break
+            if (size < np.maximum(self._round_off(Z_abs, vj, i, g), NEWTON_RESIDUAL_V)).all():
+                break
+            w = np.linalg.solve(Z + self.eye_nd * (1.0 / g)[:, None, :], -residual[..., None])[..., 0]
+            new = self._limit(vj + w / g, vj)
+            change = np.abs(new - vj).max()
+            vj = new
+            i, g = self.diode_current(vj)
+            if change < NEWTON_STEP_V:
+                break
+        return vj, i, g
+
+    def _round_off(self, Z_abs, vj, i, g):
+        """The size of the rounding error in vj + Z i(vj) - voc, per corner and junction:
+        a few units of round-off (ROUND_OFF_ULPS) of each term of Z i, where each current
+        carries the error exp() makes of its argument vj/nVt and of vj's own last digit.
+        A residual below it is as small as double precision can show it."""
+        spread = np.abs(i) * (1.0 + np.abs(vj) * self.inv_nvt) + g * np.abs(vj)
+        return ROUND_OFF_ULPS * np.finfo(float).eps * np.einsum("cij,cj->ci", Z_abs, spread)
+
     def run_period(self, x, vj, sensitivity: bool, guesses=None, load: int | None = None):
         """One period from capacitor voltages x (C, ncap); junction guess vj (C, nd).
 
@@ -426,40 +473,24 @@ class _Compiled:
             xs[k] = x
             Z = self.Z[k]
             bdf2 = self.bdf2[k]
-            voc = self.a[k] + np.einsum("cij,cj->ci", self.B1[k], x)
+            linear = self.ae[k] + np.einsum("cij,cj->ci", self.BF1[k], x)
             if bdf2:
-                voc += np.einsum("cij,cj->ci", self.B2[k], x_old)
+                linear += np.einsum("cij,cj->ci", self.BF2[k], x_old)
+            voc = linear[:, :nd]
             if bdf2 and self.bdf2[k - 1]:      # inside a phase: extrapolate the junctions
                 vj = vj + np.minimum((vj - vjs[k - 2]) * self.step_ratio[k], self.nvt)
             if guesses is not None:
                 vj = np.where(guesses[1][:, None], guesses[0][k], vj)
-            if not (nd and MAX_NEWTON_ITERATIONS):   # nothing to solve: no junctions
-                i, g = self.diode_current(vj)
-            for _ in range(MAX_NEWTON_ITERATIONS if nd else 0):
-                i, g = self.diode_current(vj)
-                residual = vj + np.einsum("cij,cj->ci", Z, i) - voc
-                if np.abs(residual).max() < NEWTON_RESIDUAL_V:
-                    break
-                w = np.linalg.solve(Z + eye * (1.0 / g)[:, None, :], -residual[..., None])[..., 0]
-                new = self._limit(vj + w / g, vj)
-                change = np.abs(new - vj).max()
-                vj = new
-                if change < NEWTON_STEP_V:
-                    i, g = self.diode_current(vj)
-                    break
+            vj, i, g = self._junctions(Z, self.Z_abs[k], voc, vj)
             currents[k] = i
             vjs[k] = vj
-            x_next = self.e[k] + np.einsum("cij,cj->ci", self.F1[k], x) - np.einsum(
-                "cij,cj->ci", self.H[k], i)
-            if bdf2:
-                x_next += np.einsum("cij,cj->ci", self.F2[k], x_old)
+            x_next = linear[:, nd:] - np.einsum("cij,cj->ci", self.H[k], i)
             if sensitivity:
                 # (I + Z g) d vj = d voc  <=>  S (g d vj) = d voc, all with respect to x0
-                dvoc = self.B1[k] @ Phi
-                dx = self.F1[k] @ Phi
+                d_linear = self.BF1[k] @ Phi
                 if bdf2:
-                    dvoc = dvoc + self.B2[k] @ Phi_old
-                    dx = dx + self.F2[k] @ Phi_old
+                    d_linear += self.BF2[k] @ Phi_old
+                dvoc, dx = d_linear[:, :nd], d_linear[:, nd:]
                 g_dvj = np.linalg.solve(Z + eye * (1.0 / g)[:, None, :], dvoc)  # (C, nd, ncap)
                 if load is not None:
                     dq += self.step_h[k] * g_dvj[:, load, :]
