@@ -177,9 +177,17 @@ def make_corners(supplies: dict[str, "Supply"], context: Context, with_capacitor
     count = grid.shape[0]
     supply_V = {}
     k = len(columns)
+    fixed: dict = {}     # (volts, its sign) -> one read-only array for every rail at that value
     for s in supplies.values():
         if s.low_V == s.high_V:
-            supply_V[s.label] = np.full(count, s.nominal_V)
+            # a board may hold thousands of fixed sources at a few values (every DC source
+            # with no [supply] table is a rail): one array each would cost more than the rest
+            same = (s.nominal_V, math.copysign(1.0, s.nominal_V))
+            found = fixed.get(same)
+            if found is None:
+                found = fixed[same] = np.full(count, s.nominal_V)
+                found.setflags(write=False)
+            supply_V[s.label] = found
         elif together:
             supply_V[s.label] = np.choose(grid[:, 0].astype(int), [s.low_V, s.nominal_V, s.high_V]).astype(float)
         else:
@@ -541,12 +549,15 @@ def analyse(flat: FlatDesign, context: Context) -> Design:
     design = Design(path=flat.path, title=flat.title, flat=flat, context=context,
                     terminals=terminals, supplies=supplies, pins=pins, leds=leds,
                     branches=branches, corners=corners, assumptions=[], notes=notes)
+    # the plain strings together (solve_strings batches their distinct solves); then the rest
+    solve_strings([b for b in branches if b.phases and b.network is None and b.pump_region is None],
+                  corners, flat)
     for b in branches:
         if b.pump_region is not None:
             if b.note is None:
                 _solve_pump_branch(b, corners, flat)
             design.pumps.extend(b.pump_region.pumps)
-        else:
+        elif b.network is not None:
             solve_branch(b, corners, flat)
     design.assumptions = list(context.assumptions) + assumptions.lines()
     return design
@@ -827,10 +838,16 @@ def _trace_branches(flat, terminals, supplies, pins, leds, corners, notes) -> li
         """From a net outward through series elements; returns (end net, path, stages)."""
         path, stages = [], []
         while net not in stops:
-            conns = [(e, k) for e, k in terminals.get(net, []) if e.key not in came]
-            if len(conns) != 1:
+            # the one terminal on the net not yet walked (none or several: the walk ends)
+            e = None
+            for x, _ in terminals.get(net, ()):
+                if x.key not in came:
+                    if e is not None:
+                        e = None
+                        break
+                    e = x
+            if e is None:
                 break
-            e, k = conns[0]
             if len(e.nodes) != 2 or not (e.kind in SERIES_KINDS or _is_wire(e)):
                 break
             came.add(e.key)
@@ -1242,8 +1259,55 @@ def solve_branch(b: Branch, corners: Corners, flat: FlatDesign) -> None:
         return
     if b.network is not None:
         return _solve_network_branch(b, corners, flat)
-    # (the resistor factor is a float array over the corners, so this is one already)
-    b.series_resistance_ohm = sum((x.value or 0.0) for x in b.resistors) * corners.resistor_factor
+    solve_strings([b], corners, flat)
+
+
+def solve_strings(branches: list[Branch], corners: Corners, flat: FlatDesign) -> None:
+    """solve_branch for many plain strings at once (those with phases and no network).
+
+    A board repeats a few indicator cells thousands of times: each distinct string (its key:
+    everything the solution depends on) is solved once, and the distinct strings of one set
+    of diodes are solved together, every phase of every one of them in one solve_string call
+    over their corners laid end to end. solve_string works element by element (each element
+    iterates until it alone converges), so a string's numbers are those it would get solved
+    on its own."""
+    plans = []                  # (branch, its key's slot, its LEDs' parameters)
+    slots: dict = {}            # key -> index into `known`
+    known: list = []            # each distinct key's solution (None until solved)
+    pending: dict = {}          # key -> (branch, stages, led_params): solved below
+    resistances: dict = {}      # total ohm -> at every corner, shared (read-only)
+    for b in branches:
+        key, stages, led_params = _string_key(b, corners, flat, resistances)
+        slot = slots.get(key)
+        if slot is None:
+            slot = slots[key] = len(known)
+            known.append(STRING_SOLUTIONS.get(key))
+            if known[slot] is None:
+                pending[key] = (b, stages, led_params)
+        plans.append((b, slot, led_params))
+    if pending:
+        for key, solution in _solve_distinct_strings(pending, corners).items():
+            known[slots[key]] = solution
+            STRING_SOLUTIONS.put(key, solution)
+    for b, slot, led_params in plans:
+        _take_string_solution(b, known[slot], led_params)
+
+
+def _string_key(b: Branch, corners: Corners, flat: FlatDesign, resistances: dict):
+    """(the key of a string's solution, its stages' diode parameters, its LEDs' parameters by
+    element key); sets the branch's series resistance at every corner.
+
+    Strings of the same total resistance share one read-only array of it (`resistances`, by
+    the total and its sign, for a -0.0): a board has a few values and thousands of strings,
+    and an array over hundreds of corners for each would cost more than all the rest."""
+    total = sum((x.value or 0.0) for x in b.resistors)
+    shared_key = (total, math.copysign(1.0, total))
+    resistance = resistances.get(shared_key)
+    if resistance is None:
+        # (the resistor factor is a float array over the corners, so this is one already)
+        resistance = resistances[shared_key] = total * corners.resistor_factor
+        resistance.setflags(write=False)
+    b.series_resistance_ohm = resistance
     led_params = {l.element.key: l.params for l in b.leds}
     stages = [[led_params[d.key] if d.key in led_params else diode_params(flat, d) for d in st]
               for st in b.stages]
@@ -1252,24 +1316,55 @@ def solve_branch(b: Branch, corners: Corners, flat: FlatDesign) -> None:
                                  for ph in b.phases),
            tuple(tuple(d.key in led_params for d in st) for st in b.stages), b.reversed,
            b.pin is not None, b.sink_pin is not None)
-    known = STRING_SOLUTIONS.get(key)
-    if known is None:
-        t = corners.temperature_K
+    return key, stages, led_params
+
+
+def _solve_distinct_strings(pending: dict, corners: Corners) -> dict:
+    """key -> (per LED (average, peak, forward, reverse) at every corner, the lit phase, the
+    pins' peak current, the number of LEDs) for each pending string, each on its own rails'
+    corners (Corners.reduce) and spread back to every corner."""
+    t = corners.temperature_K
+    jobs = []                   # (key, branch on its own corners, stages, led_params, inverse)
+    batches: dict = {}          # the stages' diodes -> [(job, phase, drive V, resistance)]
+    for key, (b, stages, led_params) in pending.items():
         labels = {b.supply.label} if b.supply is not None else set()
         labels |= {p.supply for p in (b.pin, b.sink_pin) if p is not None and p.supply}
-        labels = sorted(labels)
-        sel, inverse = corners.reduce(labels)
+        sel, inverse = corners.reduce(sorted(labels))
         small = Branch(b.id, b.leds, b.stages, b.elements, b.resistors, b.nets, b.anode_net,
                        b.cathode_net, b.drive, b.source, reversed=b.reversed,
                        phases=[Phase(ph.share, ph.drive_V[sel], ph.extra_resistance_ohm, ph.words)
                                for ph in b.phases])
         small.series_resistance_ohm = b.series_resistance_ohm[sel]
-        per_led, lit, pin_total = _solve_string_phases(small, corners.subset(sel), stages,
-                                                       led_params, t[sel])
-        names = [d.name for st in b.stages for d in st if d.key in led_params]
-        known = ([tuple(v[inverse] for v in entry) for entry in per_led], lit, pin_total[inverse],
-                 len(names))
-        STRING_SOLUTIONS.put(key, known)
+        job = len(jobs)
+        jobs.append((key, small, corners.subset(sel), stages, led_params, inverse, t[sel],
+                     [None] * len(b.phases)))
+        batch = batches.setdefault(key[0], [])
+        for index, phase in enumerate(small.phases):
+            batch.append((job, index, phase.drive_V,
+                          small.series_resistance_ohm + phase.extra_resistance_ohm))
+    for items in batches.values():
+        stages = jobs[items[0][0]][3]
+        sol = _solve_merged(np.concatenate([v for _, _, v, _ in items]),
+                            np.concatenate([r for _, _, _, r in items]),
+                            stages, np.concatenate([jobs[job][6] for job, _, _, _ in items]))
+        start = 0
+        for job, index, v, _ in items:
+            cut = slice(start, start + v.shape[0])
+            start = cut.stop
+            jobs[job][7][index] = (sol.current_A[cut],
+                                   [[i[cut] for i in st] for st in sol.diode_current_A],
+                                   [[f[cut] for f in st] for st in sol.forward_V])
+    out = {}
+    for key, small, sub, stages, led_params, inverse, _, solutions in jobs:
+        per_led, lit, pin_total = _tally_string_phases(small, sub, solutions, led_params)
+        count = sum(1 for st in small.stages for d in st if d.key in led_params)
+        out[key] = ([tuple(v[inverse] for v in entry) for entry in per_led], lit,
+                    pin_total[inverse], count)
+    return out
+
+
+def _take_string_solution(b: Branch, known, led_params) -> None:
+    """A string's figures from its (shared) solution, under its own LEDs' names."""
     per_led, lit_phase, pin_total, count = known
     if count == 1:       # the common string of one LED (b.leds: the string's LEDs in order)
         name = b.leds[0].name
@@ -1334,22 +1429,21 @@ def _solve_merged(drive_V, resistance, stages, t):
                            forward_V=forward)
 
 
-def _solve_string_phases(b: Branch, corners: Corners, stages, led_params, t):
+def _tally_string_phases(b: Branch, corners: Corners, solutions, led_params):
     """Per LED (in string order): (average, peak, forward, reverse); the lit phase; the
-    string's peak current (what its pins carry)."""
+    string's peak current (what its pins carry). solutions: per phase of b, the string's
+    (current, diode currents, forward voltages) as _solve_merged gives them."""
     tally = _LedTally([l.name for l in b.leds], corners.count)
     pin_total = np.zeros(corners.count)
     lit_phase = 0
     best_share_current = -1.0
-    for index, phase in enumerate(b.phases):
-        sol = _solve_merged(phase.drive_V, b.series_resistance_ohm + phase.extra_resistance_ohm,
-                            stages, t)
-        total = np.maximum(sol.current_A, 0.0)
+    for index, (phase, (current, diode_current, forward_V)) in enumerate(zip(b.phases, solutions)):
+        total = np.maximum(current, 0.0)
         for si, st in enumerate(b.stages):
             for di, d in enumerate(st):
                 if d.key not in led_params:
                     continue
-                tally.add(d.name, phase.share, sol.diode_current_A[si][di], sol.forward_V[si][di],
+                tally.add(d.name, phase.share, diode_current[si][di], forward_V[si][di],
                           -np.minimum(phase.drive_V, 0.0))
         nominal_current = float(total[corners.nominal])
         if nominal_current > best_share_current:

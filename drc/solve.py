@@ -484,15 +484,49 @@ def choose_series_resistor(drive_V, fixed_resistance_ohm, stages: Sequence[Stage
     if not (visible_current_A > 0 and max_current_A > 0):
         raise InputError(None, "visible and maximum currents must be positive")
 
+    candidates, current = series_currents(v, r, stages, t, candidate_factor, series,
+                                          lowest_ohm, highest_ohm)
+    low_current = np.min(np.where(low[:, None], current, np.inf), axis=0)
+    high_current = np.max(np.where(high[:, None], current, -np.inf), axis=0)
+    return series_verdict(low_current, high_current, candidates, visible_current_A,
+                          max_current_A, series)
+
+
+def series_currents(drive_V, fixed_resistance_ohm, stages: Sequence[Stage], temperature_K,
+                    candidate_factor=None, series: str = "E24", lowest_ohm: float = 1.0,
+                    highest_ohm: float = 1e6) -> tuple[np.ndarray, np.ndarray]:
+    """(candidates, current): the series values of `series` from lowest_ohm to highest_ohm,
+    and the string's current at every corner (rows) with nothing added (column 0) and with
+    each candidate added (columns 1..K), each scaled by candidate_factor at its corner (the
+    resistor tolerance, as the resistor it replaces carried). The table choose_series_resistor
+    judges with `series_verdict`; corner arrays have shape (C,) (drc.solve.solve_string
+    solves each element on its own, so a corner's row does not depend on the others)."""
+    v = np.atleast_1d(np.asarray(drive_V, dtype=float))
+    r = np.atleast_1d(np.asarray(fixed_resistance_ohm, dtype=float))
+    t = np.atleast_1d(np.asarray(temperature_K, dtype=float))
+    v, r, t = np.broadcast_arrays(v, r, t)
+    corners = v.shape[0]
     candidates = preferred.values_between(lowest_ohm, highest_ohm, series)
     added = np.concatenate(([0.0], candidates))                       # column 0: nothing added
     factor = np.ones(corners) if candidate_factor is None else np.broadcast_to(
         np.asarray(candidate_factor, dtype=float), (corners,))
-    # each candidate carries the corners' resistor tolerance, as the resistor it replaces did
     sol = solve_string(v[:, None], r[:, None] + added[None, :] * factor[:, None], stages, t[:, None])
-    current = sol.current_A                                            # (C, 1 + K)
-    low_current = np.min(np.where(low[:, None], current, np.inf), axis=0)
-    high_current = np.max(np.where(high[:, None], current, -np.inf), axis=0)
+    return candidates, sol.current_A                                   # (C, 1 + K)
+
+
+def series_verdict(low_current, high_current, candidates, visible_current_A: float,
+                   max_current_A: float, series: str = "E24") -> SeriesResistorChoice:
+    """What a table of currents says about the series resistor, in words.
+
+    low_current and high_current have one entry per column of `series_currents`' table
+    (column 0: nothing added, then each of `candidates`): the least current over the corners
+    that must stay lit, and the greatest over those that must stay within the maximum. A
+    candidate fits when its least is at least visible_current_A and its greatest at most
+    max_current_A; the best fitting one gives the most current. `series` names the series
+    in the message. choose_series_resistor is series_currents, its masks, then this.
+    """
+    low_current = np.asarray(low_current, dtype=float)
+    high_current = np.asarray(high_current, dtype=float)
     fits = (low_current[1:] >= visible_current_A) & (high_current[1:] <= max_current_A)
     acceptable = tuple(float(c) for c, ok in zip(candidates, fits) if ok)
     best = None
