@@ -10,7 +10,7 @@ from drc.analysis import Branch, Design, Led, diode_params
 from drc.diode import voltage_at_current
 from drc.errors import InputError
 from drc.flicker import modulation_percent
-from drc.solve import SeriesResistorChoice, solve_string
+from drc.solve import SeriesResistorChoice, series_verdict, solve_string
 from drc.memo import Memo
 from drc.api import format_quantity
 
@@ -73,36 +73,11 @@ def _candidate_currents(stages, stages_key, rows: np.ndarray) -> np.ndarray:
 
 
 def _verdict(current: np.ndarray, visible_current_A: float, max_current_A: float):
-    """choose_series_resistor's verdict from its table of currents (every corner both a low
-    and a high one), as it words it (drc.solve; keep the two alike)."""
-    series = _SERIES
-    candidates = preferred.values_between(_LOWEST_OHM, _HIGHEST_OHM, series)
-    low_current = np.min(current, axis=0)
-    high_current = np.max(current, axis=0)
-    fits = (low_current[1:] >= visible_current_A) & (high_current[1:] <= max_current_A)
-    acceptable = tuple(float(c) for c, ok in zip(candidates, fits) if ok)
-    best = None
-    if acceptable:
-        best = float(candidates[int(np.argmax(np.where(fits, high_current[1:], -np.inf)))])
-        verdict = "ok"
-        message = (f"{len(acceptable)} {series.upper()} values fit, "
-                   f"{preferred.format_resistance(acceptable[0])} to "
-                   f"{preferred.format_resistance(acceptable[-1])}; "
-                   f"{preferred.format_resistance(best)} gives the most current")
-    elif low_current[0] < visible_current_A:
-        verdict = "too-dim"
-        message = (f"even with no resistor added the least current is {low_current[0]:.3g} A, "
-                   f"below the visible {visible_current_A:.3g} A")
-    elif high_current[-1] > max_current_A:
-        verdict = "too-bright"
-        message = (f"even {preferred.format_resistance(candidates[-1])} lets "
-                   f"{high_current[-1]:.3g} A through, above the maximum {max_current_A:.3g} A")
-    else:
-        verdict = "no-value-fits"
-        message = ("no series value keeps the current between the visible and the maximum "
-                   "at every corner")
-    return SeriesResistorChoice(verdict, message, acceptable, best, tuple(candidates),
-                                low_current[1:], high_current[1:], float(low_current[0]))
+    """choose_series_resistor's verdict from its table of currents, every corner both a low
+    and a high one."""
+    candidates = preferred.values_between(_LOWEST_OHM, _HIGHEST_OHM, _SERIES)
+    return series_verdict(current.min(axis=0), current.max(axis=0), candidates,
+                          visible_current_A, max_current_A, _SERIES)
 
 LITHIUM_CAUTION = ("Lithium cells shorted or reversed can overheat, vent or burn: protect the "
                    "battery path and follow the cell maker's datasheet.")
