@@ -68,7 +68,16 @@ class Corners:
         there are few)."""
         cached = self.__dict__.get("_shown")
         if cached is None:
-            cached = [k for k, v in self.supply_V.items() if v.size and v.min() != v.max()]
+            # many rails share one array (make_corners: one per fixed value): judge each
+            # distinct array once
+            varies: dict[int, bool] = {}
+            cached = []
+            for k, v in self.supply_V.items():
+                found = varies.get(id(v))
+                if found is None:
+                    found = varies[id(v)] = bool(v.size and v.min() != v.max())
+                if found:
+                    cached.append(k)
             if not cached and len(self.supply_V) <= 8:
                 cached = list(self.supply_V)
             self.__dict__["_shown"] = cached
@@ -929,11 +938,15 @@ def _trace_branches(flat, terminals, supplies, pins, leds, corners, notes) -> li
 def _merge_shared_pins(branches, rail_nets, pin_nets, corners, stops) -> list[Branch]:
     """Strings on one pin share its output resistance: they are solved together, as one
     network, so each sees the pin's level after the others' current."""
-    parent = {id(b): id(b) for b in branches}
+    # a union-find over the branches that share a pin (most share none: they stay out of
+    # it, and a branch not in `parent` is its own root)
+    parent: dict[int, int] = {}
+    shared: set[int] = set()
 
     def find(x):
-        while parent[x] != x:
-            parent[x] = parent[parent[x]]
+        while parent.get(x, x) != x:
+            up = parent[x]
+            parent[x] = parent.get(up, up)
             x = parent[x]
         return x
 
@@ -945,16 +958,21 @@ def _merge_shared_pins(branches, rail_nets, pin_nets, corners, stops) -> list[Br
             if p.output_resistance_ohm <= 0:
                 continue
             if p.label in owner:
-                parent[find(id(b))] = find(owner[p.label])
+                first = owner[p.label]
+                shared.update((id(b), first))
+                parent[find(id(b))] = find(first)
             else:
                 owner[p.label] = id(b)
+    if not shared:
+        return list(branches)
     groups: dict[int, list[Branch]] = {}
     for b in branches:
-        groups.setdefault(find(id(b)), []).append(b)
+        if id(b) in shared:
+            groups.setdefault(find(id(b)), []).append(b)
     out = []
     for b in branches:
-        group = groups[find(id(b))]
-        if len(group) == 1:
+        group = groups[find(id(b))] if id(b) in shared else None
+        if group is None or len(group) == 1:
             out.append(b)
             continue
         if b is not group[0]:
@@ -1283,7 +1301,7 @@ def solve_strings(branches: list[Branch], corners: Corners, flat: FlatDesign) ->
             slot = slots[key] = len(known)
             known.append(STRING_SOLUTIONS.get(key))
             if known[slot] is None:
-                pending[key] = (b, stages, led_params)
+                pending[key] = (b, [list(st) for st in stages], led_params)
         plans.append((b, slot, led_params))
     if pending:
         for key, solution in _solve_distinct_strings(pending, corners).items():
@@ -1294,29 +1312,37 @@ def solve_strings(branches: list[Branch], corners: Corners, flat: FlatDesign) ->
 
 
 def _string_key(b: Branch, corners: Corners, flat: FlatDesign, resistances: dict):
-    """(the key of a string's solution, its stages' diode parameters, its LEDs' parameters by
-    element key); sets the branch's series resistance at every corner.
+    """(the key of a string's solution, its stages' diode parameters (a tuple of tuples), its
+    LEDs' parameters by element key); sets the branch's series resistance at every corner.
 
     Strings of the same total resistance share one read-only array of it (`resistances`, by
     the total and its sign, for a -0.0): a board has a few values and thousands of strings,
     and an array over hundreds of corners for each would cost more than all the rest."""
     total = sum((x.value or 0.0) for x in b.resistors)
     shared_key = (total, math.copysign(1.0, total))
-    resistance = resistances.get(shared_key)
-    if resistance is None:
+    shared = resistances.get(shared_key)
+    if shared is None:
         # (the resistor factor is a float array over the corners, so this is one already)
-        resistance = resistances[shared_key] = total * corners.resistor_factor
+        resistance = total * corners.resistor_factor
         resistance.setflags(write=False)
-    b.series_resistance_ohm = resistance
+        shared = resistances[shared_key] = (resistance, float(resistance[corners.nominal]))
+    b.series_resistance_ohm, nominal_ohm = shared
     led_params = {l.element.key: l.params for l in b.leds}
-    stages = [[led_params[d.key] if d.key in led_params else diode_params(flat, d) for d in st]
-              for st in b.stages]
-    key = (tuple(tuple(st) for st in stages), float(b.series_resistance_ohm[corners.nominal]),
-           corners.serial, tuple((ph.share, ph.drive_key or value_key(ph.drive_V), ph.extra_resistance_ohm)
-                                 for ph in b.phases),
-           tuple(tuple(d.key in led_params for d in st) for st in b.stages), b.reversed,
-           b.pin is not None, b.sink_pin is not None)
-    return key, stages, led_params
+    stages = b.stages
+    if len(stages) == 1 and len(stages[0]) == 1 and len(b.leds) == 1 \
+            and stages[0][0] is b.leds[0].element:
+        # the common string of one LED: the loop below, written out
+        params = ((b.leds[0].params,),)
+        marks = ((True,),)
+    else:
+        params = tuple(tuple(led_params[d.key] if d.key in led_params else diode_params(flat, d)
+                             for d in st) for st in stages)
+        marks = tuple(tuple(d.key in led_params for d in st) for st in stages)
+    key = (params, nominal_ohm, corners.serial,
+           tuple((ph.share, ph.drive_key or value_key(ph.drive_V), ph.extra_resistance_ohm)
+                 for ph in b.phases),
+           marks, b.reversed, b.pin is not None, b.sink_pin is not None)
+    return key, params, led_params
 
 
 def _solve_distinct_strings(pending: dict, corners: Corners) -> dict:
