@@ -9,15 +9,18 @@ import os
 from dataclasses import dataclass, field
 from pathlib import Path
 
+import numpy as np
+
 from drc import __version__
 from drc.advice import EYE_CAUTION, LITHIUM_CAUTION
-from drc.analysis import Design, analyse, low_nominal_high
+from drc.analysis import Design, analyse
 from drc.api import SEVERITIES, Finding
 from drc.context import Context, load_context
 from drc.errors import InputError, InputErrors, Location
 from drc.expand import Limits, expand
 from drc.registry import LoadedRule, load_rules
-from drc.report.jsonreport import BRANCH_KEYS, PUMP_KEYS, fingerprint, in_key_order, plain
+from drc.report.jsonreport import (BRANCH_KEYS, PUMP_KEYS, FinalEntries, fingerprint,
+                                   in_key_order, plain)
 from drc.running import run_rules
 
 NETLIST_PATTERNS = ("*.cir", "*.sp", "*.net", "*.spice")
@@ -79,10 +82,12 @@ def check_file(path: str, config: str | None, rules: list[LoadedRule]) -> FileRe
     design = analyse(flat, context)
     findings, ran = run_rules(design, rules, context)
     cautions = _cautions(design, findings)
+    spreads: list = []                 # (entry, key, per-corner array), filled in at once
+    branches = [_branch_json(b, design, spreads) for b in design.branches]
+    pumps = [_pump_json(p, design, spreads) for p in design.pumps]
+    _fill_spreads(spreads, design.corners.nominal)
     return FileResult(path, design, findings, _inputs(design, context), design.assumptions,
-                      cautions, [_branch_json(b, design) for b in design.branches],
-                      [_pump_json(p, design) for p in design.pumps],
-                      flat.sources, ran)
+                      cautions, branches, pumps, flat.sources, ran)
 
 
 def _inputs(design: Design, context: Context) -> dict:
@@ -94,11 +99,19 @@ def _inputs(design: Design, context: Context) -> dict:
     return entry
 
 
-def _branch_json(b, design: Design) -> list[dict]:
+def _branch_json(b, design: Design, spreads: list | None = None) -> list[dict]:
     """The report's entries for one branch, one per LED, made in their final JSON form: the
     contract's keys in order, then the others sorted, every value plain (see
-    drc.report.jsonreport._is_final), so the JSON report writes them as they are."""
-    n = design.corners.nominal
+    drc.report.jsonreport.FinalEntries), so the JSON report writes them as they are.
+
+    A spread's key is set to None here, in its place in the key order, and (entry, key,
+    array) appended to spreads for _fill_spreads to fill in; with no spreads list given,
+    they are filled in before it returns."""
+    if spreads is None:
+        own: list = []
+        out = _branch_json(b, design, own)
+        _fill_spreads(own, design.corners.nominal)
+        return out
     elements = [e.name for e in b.elements]
     if b.drive == "pin" and b.pin is not None:
         elements = [b.pin.source or b.pin.label] + elements
@@ -107,12 +120,11 @@ def _branch_json(b, design: Design) -> list[dict]:
     for led in b.leds:
         entry = {"led": led.name, "drive": b.drive, "source": b.source,
                  "elements": list(elements)}
+        entry["current_A"] = None
+        entry["forward_V"] = None
         if b.current_A:
-            entry["current_A"] = _spread(b.current_A[led.name], n)
-            entry["forward_V"] = _spread(b.forward_V[led.name], n)
-        else:
-            entry["current_A"] = None
-            entry["forward_V"] = None
+            spreads.append((entry, "current_A", b.current_A[led.name]))
+            spreads.append((entry, "forward_V", b.forward_V[led.name]))
         entry["colour"] = led.colour           # the rest in sorted order
         entry["nets"] = list(b.nets)
         if b.note:
@@ -134,8 +146,67 @@ def _finite(x: float) -> float | None:
     return x if math.isfinite(x) else None
 
 
-def _pump_json(p, design: Design) -> dict:
-    """The report's entry for one pump, in its final JSON form (as _branch_json's)."""
+def _fill_spreads(spreads: list, nominal: int) -> None:
+    """entry[key] = _spread(values, nominal) for each (entry, key, values) of spreads, the
+    same numbers, with one numpy reduction for a block of arrays of one length instead of
+    two per array: a reduction costs about 3 µs of call overhead, and a board of 100k
+    elements has some 70k spreads. The blocks are small (SPREAD_BLOCK arrays) so that the
+    copy numpy reduces stays in the processor's cache: with hundreds of corners, one table
+    of every array would be hundreds of megabytes.
+
+    An entry whose key holds SORTED_SPREAD (pin_currents' spreads, as plain() writes
+    analysis.low_nominal_high's dict) gets the same numbers with the keys sorted.
+
+    A minimum or maximum is one of the row's values, so it is the same whichever order
+    numpy compares them in; but for 0.0 and -0.0, which compare equal, which one comes back
+    depends on that order, so a zero result is taken again from the array alone, as
+    _spread takes it. Anything but a 1-D float64 array long enough for the nominal index
+    goes through _spread itself (which raises for it as it always did)."""
+    rows: dict[int, list] = {}
+    for item in spreads:
+        values = item[2]
+        if (type(values) is np.ndarray and values.ndim == 1 and values.dtype == np.float64
+                and nominal < len(values)):
+            rows.setdefault(len(values), []).append(item)
+        else:
+            entry, key = item[0], item[1]
+            spread = _spread(values, nominal)
+            entry[key] = (spread if entry.get(key) is not SORTED_SPREAD else
+                          {"high": spread["high"], "low": spread["low"],
+                           "nominal": spread["nominal"]})
+    for same in rows.values():
+        for start in range(0, len(same), SPREAD_BLOCK):
+            items = same[start:start + SPREAD_BLOCK]
+            table = np.array([values for _, _, values in items])
+            lows, highs, nominals = table.min(axis=1), table.max(axis=1), table[:, nominal]
+            finite = bool(np.isfinite(lows).all() and np.isfinite(highs).all()
+                          and np.isfinite(nominals).all())
+            for (entry, key, values), low, middle, high in zip(
+                    items, lows.tolist(), nominals.tolist(), highs.tolist()):
+                if low == 0.0:
+                    low = float(values.min())
+                if high == 0.0:
+                    high = float(values.max())
+                if not finite:
+                    low, middle, high = _finite(low), _finite(middle), _finite(high)
+                entry[key] = ({"low": low, "nominal": middle, "high": high}
+                              if entry.get(key) is not SORTED_SPREAD else
+                              {"high": high, "low": low, "nominal": middle})
+
+
+SPREAD_BLOCK = 64       # arrays per numpy reduction in _fill_spreads (measured: 16 to 128 alike)
+# The placeholder _pump_json leaves for a spread _fill_spreads writes with its keys sorted.
+SORTED_SPREAD = object()
+
+
+def _pump_json(p, design: Design, spreads: list | None = None) -> dict:
+    """The report's entry for one pump, in its final JSON form (as _branch_json's), its
+    spreads left to _fill_spreads (as _branch_json's)."""
+    if spreads is None:
+        own: list = []
+        entry = _pump_json(p, design, own)
+        _fill_spreads(own, design.corners.nominal)
+        return entry
     n = design.corners.nominal
     entry = {"id": p.id, "topology": p.topology, "stages": p.stages,
              "elements": [e.name for e in p.elements], "output_net": p.output_net}
@@ -145,21 +216,29 @@ def _pump_json(p, design: Design) -> dict:
                          "not solved: see the branch's note")
         entry["pins"] = plain(p.pins)
         return entry
-    entry["peak_V"] = _spread(r.peak_V, n)
-    entry["average_V"] = _spread(r.average_V, n)
+    for key, values in (("peak_V", r.peak_V), ("average_V", r.average_V)):
+        entry[key] = None
+        spreads.append((entry, key, values))
     led = p.region.leds[0]                  # the rest in sorted order
     entry["led"] = led.name
-    entry["led_current_A"] = _spread(r.load_average_A, n)
-    entry["led_peak_A"] = _spread(r.load_peak_A, n)
-    # not a spread key: every dict inside is sorted, as plain() sorts it
-    entry["pin_currents"] = plain(
-        {label: {"high_phase_peak_A": low_nominal_high(r.pin_high_peak_A[label], n),
-                 "low_phase_peak_A": low_nominal_high(r.pin_low_peak_A[label], n),
-                 "startup_surge_A": low_nominal_high(r.startup_surge_A[label], n)}
-         for label in p.pins if label in r.pin_high_peak_A})
+    for key, values in (("led_current_A", r.load_average_A), ("led_peak_A", r.load_peak_A)):
+        entry[key] = None
+        spreads.append((entry, key, values))
+    # not a spread key: every dict inside is sorted, as plain() sorts it, the spreads too
+    # ({"high", "low", "nominal"}: SORTED_SPREAD)
+    currents = {}
+    for label in sorted((label for label in p.pins if label in r.pin_high_peak_A), key=str):
+        phases = currents[str(label)] = {}
+        for key, table in (("high_phase_peak_A", r.pin_high_peak_A),
+                           ("low_phase_peak_A", r.pin_low_peak_A),
+                           ("startup_surge_A", r.startup_surge_A)):
+            phases[key] = SORTED_SPREAD
+            spreads.append((phases, key, table[label]))
+    entry["pin_currents"] = currents
     entry["pins"] = plain(p.pins)
-    entry["ripple_V"] = _spread(r.ripple_V, n)
-    entry["time_to_visible_s"] = _spread(r.time_to_visible_s, n)
+    for key, values in (("ripple_V", r.ripple_V), ("time_to_visible_s", r.time_to_visible_s)):
+        entry[key] = None
+        spreads.append((entry, key, values))
     return entry
 
 
@@ -179,13 +258,18 @@ def _cautions(design: Design, findings: list[Finding]) -> list[str]:
 
 def run_check(paths: list[str], config: str | None, rule_folders: list[str], *, jobs: int = 1,
               waiver_files: list[str] = (), baseline: str | None = None, progress=None,
-              today=None) -> tuple[dict, dict, list[LoadedRule]]:
+              today=None, keep: list | None = None) -> tuple[dict, dict, list[LoadedRule]]:
     """The report dict (the contract's shape), the sources for quoting, and the rules.
 
     jobs > 1 checks the files in a process pool; the report is the same whatever jobs.
     waiver_files are TOML waiver files; baseline a file written by --write-baseline.
     progress(done, total) is called as files finish. Every input problem (netlists,
     waivers, baseline) raises InputErrors before anything is written.
+
+    keep, a list, is for a caller about to end its process (drc.cli.run): it is left
+    holding the last file's whole result, its Design, which is otherwise freed as soon as
+    the report's part is taken, object by object (about 0.2 s at 100k elements), where
+    the end of the process frees it at once. Earlier files are freed as before.
     """
     import datetime as _dt
     from drc import waivers as _waivers
@@ -211,13 +295,16 @@ def run_check(paths: list[str], config: str | None, rule_folders: list[str], *, 
         except InputError as one:
             errors.append(one)
     results: list[FileResult] = []
-    for outcome in _check_all(files, config, rule_folders, rules, jobs, progress):
+    for outcome in _check_all(files, config, rule_folders, rules, jobs, progress, keep):
         if isinstance(outcome, FileResult):
             results.append(outcome)
         else:
             errors.extend(outcome)
     multiple = len(results) > 1
-    findings, anchors, assumptions, cautions, branches, pumps, inputs = [], [], [], [], [], [], []
+    # findings, branches and pumps are made in their final JSON form (_finding_json,
+    # _branch_json, _pump_json, and the two kinds of finding made below), and marked so
+    findings, branches, pumps = FinalEntries(), FinalEntries(), FinalEntries()
+    anchors, assumptions, cautions, inputs = [], [], [], []
     sources: dict[str, list[str]] = {}
     for r in results:
         inputs.append(r.inputs)
@@ -317,13 +404,19 @@ def _check_in_worker(path: str, config: str | None, rule_folders: tuple[str, ...
         return "errors", _errors_as_data(error)
 
 
-def _check_all(files, config, rule_folders, rules, jobs, progress):
-    """A FileResult, or a list of InputErrors, per file, in the order of files."""
+def _check_all(files, config, rule_folders, rules, jobs, progress, keep=None):
+    """A FileResult, or a list of InputErrors, per file, in the order of files; keep, if a
+    list, left holding the last full result checked here (see run_check)."""
     total = len(files)
     if jobs <= 1 or total <= 1:
         for n, path in enumerate(files, 1):
             try:
-                yield _slim(check_file(path, config, rules))
+                result = check_file(path, config, rules)
+                if keep is not None:
+                    keep[:] = [result]
+                slim = _slim(result)
+                del result          # the Design goes now, not when the next file is done
+                yield slim
             except (InputError, InputErrors) as error:
                 yield error.errors if isinstance(error, InputErrors) else [error]
             if progress:
@@ -351,13 +444,33 @@ def _check_all(files, config, rule_folders, rules, jobs, progress):
 def _finding_json(f: Finding) -> dict:
     """A finding as the report's dict, in its final JSON form but for the fingerprint (added
     by run_check): the contract's keys in order and every value plain, the corner and values
-    with sorted keys, as the JSON report writes them."""
+    with sorted keys, as the JSON report writes them (see FinalEntries). A house rule may
+    put anything in a Finding, so what is not an exact str (or int) already goes through
+    plain(), as the report's full walk would take it."""
     values = {k: (float(v) if isinstance(v, (int, float)) or hasattr(v, "item") else v)
               for k, v in f.values.items()}
-    return {"rule": f.rule, "severity": f.severity, "message": f.message,
-            "location": {"path": f.location.path, "line": f.location.line, "column": f.location.column},
-            "elements": list(f.elements), "nets": list(f.nets), "corner": plain(f.corner),
-            "values": plain(values), "fix": f.fix, "caution": f.caution}
+    location = f.location
+    return {"rule": _leaf(f.rule), "severity": _leaf(f.severity), "message": _leaf(f.message),
+            "location": {"path": _leaf(location.path), "line": _leaf(location.line),
+                         "column": _leaf(location.column)},
+            "elements": _names(f.elements), "nets": _names(f.nets),
+            "corner": plain(f.corner), "values": plain(values), "fix": _leaf(f.fix),
+            "caution": _leaf(f.caution)}
+
+
+def _leaf(value):
+    """value as plain() gives it, the common exact str and int passed without a call."""
+    kind = type(value)
+    return value if kind is str or kind is int else plain(value)
+
+
+def _names(names) -> list:
+    """A list of names as plain() gives it: a copy when all are exact str (the usual)."""
+    out = list(names)
+    return out if _STR_ONLY.issuperset(map(type, out)) else [_leaf(name) for name in out]
+
+
+_STR_ONLY = frozenset((str,))
 
 
 def rule_metadata(rules: list[LoadedRule]) -> list[dict]:

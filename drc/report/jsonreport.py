@@ -40,17 +40,24 @@ def fingerprint(finding: dict) -> str:
     key = [
         str(finding.get("rule", "")),
         _fingerprint_path(str(location.get("path", ""))),
-        sorted(str(name).lower() for name in finding.get("elements") or ()),
-        sorted(str(name).lower() for name in finding.get("nets") or ()),
+        sorted([str(name).lower() for name in finding.get("elements") or ()]),
+        sorted([str(name).lower() for name in finding.get("nets") or ()]),
     ]
     # JSON of a list keeps field boundaries unambiguous ("a","bc" differs from "ab","c").
-    text = _KEY_JSON(key)
+    text = _key_json(key)
     return hashlib.sha256(text.encode("utf-8")).hexdigest()[:32]
 
 
-# The fingerprint's JSON, as json.dumps(key, ensure_ascii=True, separators=(",", ":")) writes
-# it; one encoder made once, not one per finding.
-_KEY_JSON = json.JSONEncoder(ensure_ascii=True, separators=(",", ":")).encode
+_ascii_str = json.encoder.encode_basestring_ascii     # a str as ensure_ascii=True writes it
+
+
+def _key_json(key: list) -> str:
+    """json.dumps(key, ensure_ascii=True, separators=(",", ":")) for the fingerprint's key (two
+    strings, then two lists of strings), written directly: the encoder json.dumps sets up
+    for each call cost more than the writing, once per finding."""
+    rule, path, elements, nets = key
+    return (f"[{_ascii_str(rule)},{_ascii_str(path)},[{','.join(map(_ascii_str, elements))}],"
+            f"[{','.join(map(_ascii_str, nets))}]]")
 
 
 @functools.lru_cache(maxsize=1024)
@@ -106,18 +113,39 @@ def count_findings(findings: list[dict]) -> dict:
     return counts
 
 
+class FinalEntries(list):
+    """A list of report entries (findings, branches or pumps) that their maker, drc.engine,
+    built in their final JSON form: the contract's keys in order, then the others sorted,
+    every value plain (what _ordered and plain() would give back unchanged).
+
+    render_json writes such a list as it is, without checking each entry (_is_final): at a
+    hundred thousand elements the check costs about a third of the JSON report. The promise
+    is held by tests/test_speed_report.py, which checks every entry the engine marks, on the
+    samples and on a generated board, so an edit that breaks it fails there. A plain list
+    (a report made by hand or read back from JSON) is checked entry by entry as before.
+    """
+
+    __slots__ = ()
+
+
 def prepare(report: dict) -> dict:
     """A copy of the report with a fingerprint on every finding and the summary recounted.
 
     The summary is derived from the findings, so every format agrees with the findings it
-    lists; keys of the given summary other than the four counts are kept.
+    lists; keys of the given summary other than the four counts are kept. Findings marked
+    FinalEntries stay marked when none needed a fingerprint added (a copy of a final entry
+    is final; one with a fingerprint appended may not be, if it has a waiver).
     """
     findings = []
+    added = False
     for finding in report.get("findings") or ():
         finding = dict(finding)
         if "fingerprint" not in finding:        # the engine's findings carry theirs
             finding["fingerprint"] = fingerprint(finding)
+            added = True
         findings.append(finding)
+    if type(report.get("findings")) is FinalEntries and not added:
+        findings = FinalEntries(findings)
     prepared = dict(report)
     prepared["findings"] = findings
     summary = dict(report.get("summary") or {})
@@ -146,7 +174,11 @@ def _json_text(ordered: dict) -> str:
     size = len(ordered.get("findings") or ()) + len(ordered.get("branches") or ())
     if size <= LARGE_REPORT:
         return indented_json(ordered) + "\n"
-    return json.dumps(ordered, ensure_ascii=False, allow_nan=False, separators=(",", ":")) + "\n"
+    # check_circular=False: the same text; a report holding itself (never the engine's) then
+    # ends in RecursionError here instead of ValueError, and so it did before, one step on,
+    # in render_json's full walk (plain() recursing). It saves a lookup per list and dict.
+    return json.dumps(ordered, ensure_ascii=False, allow_nan=False, check_circular=False,
+                      separators=(",", ":")) + "\n"
 
 
 def indented_json(value: Any) -> str:
@@ -274,7 +306,8 @@ def _ordered(obj: Any, keys: tuple[str, ...], children=None, reuse: bool = False
 
     With reuse, an entry of a list (a finding, a branch, a pump) that is already in that
     form (_is_final) is kept as it is instead of being rebuilt: the engine makes its entries
-    so, and walking some hundred thousand values again is most of a big report's time.
+    so, and walking some hundred thousand values again is most of a big report's time. A
+    FinalEntries list is kept whole, unchecked (see FinalEntries).
     """
     if not isinstance(obj, dict):
         return plain(obj)
@@ -287,6 +320,9 @@ def _ordered(obj: Any, keys: tuple[str, ...], children=None, reuse: bool = False
         if shape is None:
             out[str(key)] = plain(value)
         elif shape[0] == "list":
+            if reuse and type(value) is FinalEntries:
+                out[str(key)] = value           # made final by the engine: as it is
+                continue
             out[str(key)] = [item if reuse and _is_final(item, shape[1], shape[2])
                              else _ordered(item, shape[1], shape[2])
                              for item in value or ()]

@@ -5,7 +5,7 @@ from __future__ import annotations
 import re
 from urllib.parse import quote
 
-from drc.report.jsonreport import SEVERITIES, indented_json, plain, prepare
+from drc.report.jsonreport import SEVERITIES, FinalEntries, indented_json, plain, prepare
 
 SARIF_VERSION = "2.1.0"
 SARIF_SCHEMA_URI = ("https://docs.oasis-open.org/sarif/sarif/v2.1.0/errata01/os/schemas/"
@@ -34,7 +34,8 @@ def render_sarif(report: dict, rules: list[dict] | None = None) -> str:
                  for entry in report.get("inputs") or () if entry.get("path")]
     if artifacts:
         run["artifacts"] = artifacts
-    run["results"] = [_result(finding, index_of) for finding in report["findings"]]
+    final = type(report["findings"]) is FinalEntries
+    run["results"] = [_result(finding, index_of, final) for finding in report["findings"]]
     run["columnKind"] = "unicodeCodePoints"
     run_properties = {}
     for key in ("assumptions", "cautions"):
@@ -107,7 +108,14 @@ def _descriptor(rule: dict) -> dict:
     return descriptor
 
 
-def _result(finding: dict, index_of: dict[str, int]) -> dict:
+# A finding's keys copied into its result's properties. In a FinalEntries finding all but
+# waiver_expired are plain already (the engine made them so; a waiver's record keeps the
+# report's key order, which plain() sorts), so they are taken as they are.
+_PROPERTY_KEYS = ("elements", "nets", "corner", "values", "caution", "waiver_expired")
+_PLAIN_WHEN_FINAL = frozenset(("elements", "nets", "corner", "values", "caution"))
+
+
+def _result(finding: dict, index_of: dict[str, int], final: bool = False) -> dict:
     rule_id = str(finding.get("rule", ""))
     text = str(finding.get("message", ""))
     if finding.get("fix"):
@@ -141,9 +149,10 @@ def _result(finding: dict, index_of: dict[str, int]) -> dict:
         result["baselineState"] = "unchanged" if finding["baseline"] == "known" else "new"
 
     properties = {}
-    for key in ("elements", "nets", "corner", "values", "caution", "waiver_expired"):
-        if finding.get(key) is not None:
-            properties[key] = plain(finding[key])
+    for key in _PROPERTY_KEYS:
+        value = finding.get(key)
+        if value is not None:
+            properties[key] = value if final and key in _PLAIN_WHEN_FINAL else plain(value)
     if properties:
         result["properties"] = properties
     return result
