@@ -223,6 +223,55 @@ def rerun_pump(design: Design, pump, **changes):
                                 lambda e: diode_params(design.flat, e), **changes)
 
 
+def rerun_pump_variants(design: Design, pump, variants: list[dict]) -> list:
+    """rerun_pump(design, pump, **v) for each v of `variants`, in ONE run of the model.
+
+    Each variant may change series_ohm={pin: ohm} and capacitor_scale={key: x} (values that
+    the model takes per corner); a frequency or a diode cannot differ within one run. The
+    region's own corners (as solve_on_own_corners picks them) are laid out once per variant,
+    side by side, with each variant's values at its own block of corners, and each variant's
+    result is its block spread back over every corner (its waveforms stay in the batch).
+
+    The model's Newton and shooting stop tests look at the whole batch, so a variant's
+    figures can differ from its own rerun_pump in the last digits (some 1e-9 relative on the
+    boards measured); a single variant gives exactly rerun_pump's result."""
+    from drc.pumps import expand_result, simulate
+    allowed = {"series_ohm", "capacitor_scale"}
+    for v in variants:
+        if set(v) - allowed:
+            raise ValueError(f"a batched re-run can vary only {sorted(allowed)}")
+    region = pump.region
+    corners = design.corners
+    # the same corner choice as drc.pumps.solve_on_own_corners
+    labels = {r.label for r in region.rails} | {p.supply for p in region.pins if p.supply}
+    sel, inverse = corners.reduce(sorted(labels), capacitors=True)
+    count, size = len(variants), len(sel)
+    if count == 0:
+        return []
+    if count == 1:
+        return [rerun_pump(design, pump, **variants[0])]
+    laid = np.tile(sel, count)
+
+    def per_corner(field: str, default: float) -> dict:
+        """name -> each variant's value (`default` where it names none), at its corners."""
+        names = sorted({name for v in variants for name in v.get(field, {})})
+        return {name: np.repeat([float(v.get(field, {}).get(name, default)) for v in variants],
+                                size)
+                for name in names}
+
+    changes = {}
+    series, scale = per_corner("series_ohm", 0.0), per_corner("capacitor_scale", 1.0)
+    if series:
+        changes["series_ohm"] = series
+    if scale:
+        changes["capacitor_scale"] = scale
+    if not changes:        # every variant is the pump as it is (and drc.pumps.simulate would
+        return [rerun_pump(design, pump)] * count     # take a batch of it for the region's own)
+    result = simulate(region, corners.subset(laid), lambda e: diode_params(design.flat, e),
+                      fast=True, sel=laid, **changes)
+    return [expand_result(result, inverse + k * size) for k in range(count)]
+
+
 # A small Schottky for fixes that suggest one (from memory: about 0.3 V at 1 mA).
 SCHOTTKY_SUGGESTION = dict(IS=2e-7, N=1.05, RS=2.0, XTI=2.0, EG=0.69)
 

@@ -85,14 +85,14 @@ __all__ = ["API_VERSION", "SEVERITIES", "SETTING_UNITS", "Rule", "Setting", "Fin
            "finding", "format_quantity", "Location", "Design", "worst_low", "worst_high",
            "corner", "corner_words", "branch_cautions", "needed_voltage",
            "series_resistor_advice", "format_resistance", "GROUND", "rerun_pump",
-           "schottky_params", "flicker_of_branch", "flicker", "preferred", "diode_params_of",
-           "forward_voltage", "saturation_current_at", "is_preferred", "nearest_preferred",
-           "is_schottky"]
+           "rerun_pump_variants", "schottky_params", "flicker_of_branch", "flicker", "preferred",
+           "diode_params_of", "forward_voltage", "saturation_current_at", "is_preferred",
+           "nearest_preferred", "is_schottky"]
 
 _ADVICE = ("worst_low", "worst_high", "corner", "corner_words", "branch_cautions",
-           "needed_voltage", "series_resistor_advice", "rerun_pump", "schottky_params",
-           "flicker_of_branch", "diode_params_of", "forward_voltage", "saturation_current_at",
-           "is_preferred", "nearest_preferred", "is_schottky")
+           "needed_voltage", "series_resistor_advice", "rerun_pump", "rerun_pump_variants",
+           "schottky_params", "flicker_of_branch", "diode_params_of", "forward_voltage",
+           "saturation_current_at", "is_preferred", "nearest_preferred", "is_schottky")
 
 
 _FORMATTED: dict = {}      # (value, unit, digits) -> text, for format_quantity

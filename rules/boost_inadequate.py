@@ -25,7 +25,7 @@ SPICE2 diode temperature law; Talbot-Plateau law (average current as brightness)
 import numpy as np
 
 from drc.api import (Rule, branch_cautions, corner, finding, format_quantity, is_schottky,
-                     preferred, rerun_pump, schottky_params, worst_low)
+                     preferred, rerun_pump, rerun_pump_variants, schottky_params, worst_low)
 
 RULE = Rule(id="boost-inadequate", severity="error",
             summary="a pump whose output cannot light its LED at the low corner",
@@ -66,6 +66,17 @@ def _lights(design, pump, led, **changes):
     return float(np.min(r.load_average_A))
 
 
+def _lights_each(design, pump, led, variants):
+    """_lights for each of `variants` (changes the model takes per corner), run as one
+    batch of corners; one by one if the batch fails, so that a variant the model cannot
+    solve spoils only its own answer, as in _lights."""
+    try:
+        results = rerun_pump_variants(design, pump, variants)
+    except Exception:
+        return [_lights(design, pump, led, **v) for v in variants]
+    return [float(np.min(r.load_average_A)) for r in results]
+
+
 # (pump cell signature, pumping capacitor, visible current, nominal temperature) -> what
 # _work_out found: it depends on nothing else.
 _FIXES = {}
@@ -97,10 +108,11 @@ def _work_out(design, pump, led):
     tried = []
     present = pump.capacitors[0].value
     larger = [v for v in preferred.values_between(present * 1.5, present * 10.5, "E6")][:4]
-    for value in larger:
-        scale = value / present
-        changes = {"capacitor_scale": {c.key: scale for c in pump.capacitors}}
-        low = _lights(design, pump, led, **changes)
+    # every capacitor value in one run of the model (the capacitors are values per corner)
+    lows = _lights_each(design, pump, led, [{"capacitor_scale": {c.key: value / present
+                                                                for c in pump.capacitors}}
+                                            for value in larger])
+    for value, low in zip(larger, lows):
         tried.append(f"{format_quantity(value, 'F')} pumping capacitor: {format_quantity(low or 0, 'A')}")
         if low is not None and low >= led.visible_current_A:
             return (f"a {format_quantity(value, 'F')} pumping capacitor (E6, IEC 60063) in place of "
