@@ -96,6 +96,22 @@ def run() -> None:
     sys.exit(status)
 
 
+def _to_stdout(text: str) -> None:
+    """Write text to stdout; a reader that has gone (`drc check x | head`) is not an error.
+
+    The rest of the output is dropped and the command carries on: the baseline file is
+    still written and the exit status is still the check's verdict. stdout is pointed at
+    the null device, so the interpreter's own last flush does not fail again.
+    """
+    try:
+        sys.stdout.write(text)
+        sys.stdout.flush()
+    except BrokenPipeError:
+        null = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(null, sys.stdout.fileno())
+        os.close(null)
+
+
 def _main(argv: list[str] | None, keep: list | None) -> int:
     try:
         args = _parser().parse_args(argv)
@@ -163,7 +179,7 @@ def _check(args, keep: list | None = None) -> int:
         if args.output:
             write_atomic(args.output, text)
         else:
-            sys.stdout.write(text)
+            _to_stdout(text)
         if args.write_baseline:
             write_atomic(args.write_baseline, render_baseline(report))
         failing = args.fail_on != "never" and any(is_failing(f, args.fail_on)
@@ -216,7 +232,7 @@ def _rule_list(folders):
 def _rules(args) -> int:
     rules = _rule_list(args.rules)
     if args.format == "json":
-        sys.stdout.write(json.dumps([{"id": r["id"], "severity": r["severity"],
+        _to_stdout(json.dumps([{"id": r["id"], "severity": r["severity"],
                                       "summary": r["summary"], "origin": r["origin"]}
                                      for r in rules], indent=2) + "\n")
         return EXIT_CLEAN
@@ -224,7 +240,7 @@ def _rules(args) -> int:
     rows = [(r["id"], r["severity"], r["origin"], r["summary"]) for r in rules]
     widths = [max(len(row[i]) for row in (headers, *rows)) for i in range(3)]
     for row in (headers, *rows):
-        sys.stdout.write("  ".join(cell.ljust(w) for cell, w in zip(row, widths))
+        _to_stdout("  ".join(cell.ljust(w) for cell, w in zip(row, widths))
                          + "  " + row[3] + "\n")
     return EXIT_CLEAN
 
@@ -252,5 +268,5 @@ def _explain(args) -> int:
         out += ["", "Sources:"] + [f"  - {s}" for s in r["sources"]]
     if r["id"] != "waiver-unused":
         out += ["", HOW_TO_WAIVE]
-    sys.stdout.write("\n".join(out) + "\n")
+    _to_stdout("\n".join(out) + "\n")
     return EXIT_CLEAN

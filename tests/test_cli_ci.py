@@ -223,6 +223,21 @@ def test_python_dash_m_and_no_traceback(boards):
     assert done.returncode == 2 and done.stderr.count("\n") == 1 and "no such file" in done.stderr
 
 
+def test_a_reader_that_goes_away_is_not_a_fault(boards, tmp_path):
+    # `drc check ... | head` closes the pipe early (POSIX: the writer gets EPIPE): the check's
+    # verdict stands as the exit status, the baseline is still written, and nothing is said
+    baseline = tmp_path / "known.json"
+    proc = subprocess.Popen([sys.executable, "-m", "drc", "check", str(boards),
+                             "--write-baseline", str(baseline)],
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+    proc.stdout.close()
+    err = proc.stderr.read().decode()
+    proc.stderr.close()
+    assert proc.wait() == 1, err
+    assert err == ""
+    assert json.loads(baseline.read_text())
+
+
 def test_rules_lists_every_rule_with_its_origin(capsys):
     status, out, _ = run(capsys, "rules", "--format", "json")
     rules = json.loads(out)

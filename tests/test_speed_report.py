@@ -370,4 +370,6 @@ def test_run_on_a_closed_pipe_exits_as_an_ordinary_exit_does():
             os.close(writing)
         outcomes.append((done.returncode, done.stderr))
     assert outcomes[0] == outcomes[1]
-    assert outcomes[0][0] != 0
+    # a closed pipe drops the output, not the verdict: coin_tag's check is clean (status 0),
+    # and nothing is said on stderr
+    assert outcomes[0] == (0, b"")
