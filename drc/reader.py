@@ -187,18 +187,29 @@ def continued_card(lines: list[str], first: int, last: int, path: str) -> Card |
     if start >= len(line) or _SIMPLE_CHARS.search(line, start) is not None:
         return None
     tokens = _simple_tokens(line, start, path, first + 1)
-    for k in range(first + 1, last + 1):
-        line = lines[k]
-        stripped = line.lstrip(" \t\f")
-        if not stripped or stripped[0] != "+":
-            if stripped and stripped[0] not in "*;":
-                return None
-            continue                                   # a blank or comment line between
+    for k, line, stripped in _continuations(lines, first, last):
+        if line is None:
+            return None
         start = len(line) - len(stripped) + 1          # after the '+'
         if _SIMPLE_CHARS.search(line, start) is not None:
             return None
         tokens += _simple_tokens(line, start, path, k + 1)
     return _simple_tokens_card(tokens)
+
+
+def _continuations(lines: list[str], first: int, last: int):
+    """The `+` lines of a card spread over lines[first] to lines[last]: (index, line, line
+    without its leading white space) for each, skipping the blank and comment lines between;
+    (index, None, None) for a line that is neither, which ends the fast path's reading."""
+    for k in range(first + 1, last + 1):
+        line = lines[k]
+        stripped = line.lstrip(" \t\f")
+        if not stripped or stripped[0] != "+":
+            if stripped and stripped[0] not in "*;":
+                yield k, None, None
+                return
+            continue                                   # a blank or comment line between
+        yield k, line, stripped
 
 
 def _simple_tokens(line: str, start: int, path: str, line_number: int) -> list[Word]:
@@ -220,14 +231,8 @@ def words_card(lines: list[str], first: int, last: int, path: str) -> ElementCar
     if not stripped or stripped[0] not in _ASCII_LETTERS or not _CALL_CLEAR(stripped):
         return None
     words = _words(line, len(line) - len(stripped), path, first + 1)
-    for k in range(first + 1, last + 1):
-        line = lines[k]
-        stripped = line.lstrip(" \t\f")
-        if not stripped or stripped[0] != "+":
-            if stripped and stripped[0] not in "*;":
-                return None
-            continue                                   # a blank or comment line between
-        if not _CALL_CLEAR(stripped):
+    for k, line, stripped in _continuations(lines, first, last):
+        if line is None or not _CALL_CLEAR(stripped):
             return None
         start = len(line) - len(stripped) + 1          # after the '+'
         words += [_new(Word, (m.group(), path, k + 1, m.start() + 1))
