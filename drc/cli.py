@@ -85,8 +85,11 @@ def run() -> None:
             sys.exit(status)
         # what the interpreter runs at exit, in its order (a handler that raises is
         # reported on stderr and the rest still run, as at an ordinary exit); private by
-        # name, but CPython's own way to run them early
-        atexit._run_exitfuncs()
+        # name, but CPython's own way to run them early. A Python without it exits as usual.
+        run_exit_handlers = getattr(atexit, "_run_exitfuncs", None)
+        if run_exit_handlers is None:
+            sys.exit(status)
+        run_exit_handlers()
         try:
             sys.stdout.flush()
             sys.stderr.flush()
