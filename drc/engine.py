@@ -13,7 +13,7 @@ import numpy as np
 
 from drc import __version__
 from drc.advice import EYE_CAUTION, LITHIUM_CAUTION
-from drc.analysis import Design, analyse
+from drc.analysis import Design, analyse, low_nominal_high
 from drc.api import SEVERITIES, Finding
 from drc.context import Context, load_context
 from drc.errors import InputError, InputErrors, Location
@@ -136,10 +136,18 @@ def _branch_json(b, design: Design, spreads: list | None = None) -> list[dict]:
 
 
 def _spread(values, nominal: int) -> dict:
-    """The contract's {low, nominal, high} of a per-corner array, as analysis.low_nominal_high
-    gives it, with a NaN or infinity as None (JSON's null), as the report writes it."""
-    return {"low": _finite(float(values.min())), "nominal": _finite(float(values[nominal])),
-            "high": _finite(float(values.max()))}
+    """analysis.low_nominal_high of a per-corner array, with a NaN or infinity as None
+    (JSON's null), as the report writes it."""
+    return {key: _finite(x) for key, x in low_nominal_high(values, nominal).items()}
+
+
+def _put_spread(entry: dict, key: str, low, middle, high) -> None:
+    """entry[key] = the spread, in the contract's key order, or sorted where the entry holds
+    SORTED_SPREAD there (as plain() writes a dict of unnamed keys)."""
+    if entry.get(key) is SORTED_SPREAD:
+        entry[key] = {"high": high, "low": low, "nominal": middle}
+    else:
+        entry[key] = {"low": low, "nominal": middle, "high": high}
 
 
 def _finite(x: float) -> float | None:
@@ -169,11 +177,8 @@ def _fill_spreads(spreads: list, nominal: int) -> None:
                 and nominal < len(values)):
             rows.setdefault(len(values), []).append(item)
         else:
-            entry, key = item[0], item[1]
             spread = _spread(values, nominal)
-            entry[key] = (spread if entry.get(key) is not SORTED_SPREAD else
-                          {"high": spread["high"], "low": spread["low"],
-                           "nominal": spread["nominal"]})
+            _put_spread(item[0], item[1], spread["low"], spread["nominal"], spread["high"])
     for same in rows.values():
         for start in range(0, len(same), SPREAD_BLOCK):
             items = same[start:start + SPREAD_BLOCK]
@@ -189,9 +194,7 @@ def _fill_spreads(spreads: list, nominal: int) -> None:
                     high = float(values.max())
                 if not finite:
                     low, middle, high = _finite(low), _finite(middle), _finite(high)
-                entry[key] = ({"low": low, "nominal": middle, "high": high}
-                              if entry.get(key) is not SORTED_SPREAD else
-                              {"high": high, "low": low, "nominal": middle})
+                _put_spread(entry, key, low, middle, high)
 
 
 SPREAD_BLOCK = 64       # arrays per numpy reduction in _fill_spreads (measured: 16 to 128 alike)

@@ -26,21 +26,23 @@ def modulation_percent(light) -> float:
 
 def low_risk_limit(frequency_Hz: float) -> float:
     """The greatest modulation (percent) in IEEE 1789's low-risk region; inf above 1250 Hz."""
-    f = float(frequency_Hz)
-    if f < 90:
-        return 0.025 * f
-    if f <= 1250:
-        return 0.08 * f
-    return float("inf")
+    return _line(frequency_Hz, 0.025, 0.08, 1250.0)
 
 
 def no_effect_limit(frequency_Hz: float) -> float:
     """The greatest modulation (percent) with no observable effect; inf above 3 kHz."""
+    return _line(frequency_Hz, 0.01, 0.0333, 3000.0)
+
+
+def _line(frequency_Hz: float, slope_below_90: float, slope_from_90: float,
+          end_Hz: float) -> float:
+    """One of IEEE 1789's two lines: percent modulation proportional to frequency, with one
+    slope below 90 Hz and another from 90 Hz to its end; no limit beyond the end."""
     f = float(frequency_Hz)
     if f < 90:
-        return 0.01 * f
-    if f <= 3000:
-        return 0.0333 * f
+        return slope_below_90 * f
+    if f <= end_Hz:
+        return slope_from_90 * f
     return float("inf")
 
 

@@ -217,14 +217,7 @@ def _write_indented(value: Any, pad: str, out: list[str]) -> None:
         inner = pad + "  "
         lead = "[" + inner
         for item in value:
-            kind = type(item)
-            if kind is str:                 # the common leaves inline, the rest recursively
-                out.append(lead + _encode_str(item))
-            elif kind is int:
-                out.append(lead + int.__repr__(item))
-            else:
-                out.append(lead)
-                _write_indented(item, inner, out)
+            _write_item(lead, item, inner, out)
             lead = "," + inner
         out.append(pad + "]")
     elif isinstance(value, dict):
@@ -234,19 +227,24 @@ def _write_indented(value: Any, pad: str, out: list[str]) -> None:
         inner = pad + "  "
         lead = "{" + inner
         for key, item in value.items():
-            head = lead + _encode_str(_key_text(key)) + ": "
-            kind = type(item)
-            if kind is str:
-                out.append(head + _encode_str(item))
-            elif kind is int:
-                out.append(head + int.__repr__(item))
-            else:
-                out.append(head)
-                _write_indented(item, inner, out)
+            _write_item(lead + _encode_str(_key_text(key)) + ": ", item, inner, out)
             lead = "," + inner
         out.append(pad + "}")
     else:
         raise TypeError(f"Object of type {value.__class__.__name__} is not JSON serializable")
+
+
+def _write_item(head: str, item: Any, pad: str, out: list[str]) -> None:
+    """One member of a list or dict after its head (its comma or "key": ): the common leaves
+    on the same line, anything else through _write_indented at `pad`."""
+    kind = type(item)
+    if kind is str:
+        out.append(head + _encode_str(item))
+    elif kind is int:
+        out.append(head + int.__repr__(item))
+    else:
+        out.append(head)
+        _write_indented(item, pad, out)
 
 
 _encode_str = json.encoder.encode_basestring      # what ensure_ascii=False writes strings with
