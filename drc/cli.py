@@ -99,15 +99,25 @@ def run() -> None:
     sys.exit(status)
 
 
-def _to_stdout(text: str) -> None:
-    """Write text to stdout; a reader that has gone (`drc check x | head`) is not an error.
+def _to_stdout(text: str | bytes) -> None:
+    """Write text (a str, or UTF-8 bytes) to stdout; a reader that has gone (`drc check x |
+    head`) is not an error.
 
     The rest of the output is dropped and the command carries on: the baseline file is
     still written and the exit status is still the check's verdict. stdout is pointed at
     the null device, so the interpreter's own last flush does not fail again.
     """
     try:
-        sys.stdout.write(text)
+        if isinstance(text, bytes):
+            buffer = getattr(sys.stdout, "buffer", None)
+            if buffer is None:              # a stream of text only (embedding, tests)
+                sys.stdout.write(text.decode("utf-8"))
+            else:
+                sys.stdout.flush()          # what was written as text goes first
+                buffer.write(text)
+                buffer.flush()
+        else:
+            sys.stdout.write(text)
         sys.stdout.flush()
     except BrokenPipeError:
         null = os.open(os.devnull, os.O_WRONLY)
@@ -147,7 +157,7 @@ def _check(args, keep: list | None = None) -> int:
     from drc.baseline import render_baseline
     from drc.engine import rule_metadata, run_check
     from drc.errors import location_of_path
-    from drc.report import render
+    from drc.report import render_bytes
     from drc.report.jsonreport import is_failing, prepare
     from drc.report.output import should_color, write_atomic
     if args.jobs < 1:
@@ -177,8 +187,8 @@ def _check(args, keep: list | None = None) -> int:
             progress.clear()
         report = prepare(report)
         color = args.output is None and args.format == "text" and should_color(sys.stdout)
-        text = render(report, args.format, sources=sources, rules=rule_metadata(rules),
-                      color=color, quiet=args.quiet, fail_on=args.fail_on)
+        text = render_bytes(report, args.format, sources=sources, rules=rule_metadata(rules),
+                            color=color, quiet=args.quiet, fail_on=args.fail_on)
         if args.output:
             write_atomic(args.output, text)
         else:

@@ -9,7 +9,9 @@
   generated board, must be final, so an edit that breaks the form fails here.
 - the engine's spreads (low, nominal, high) computed for many arrays at once against
   numpy's min, index and max of each array alone.
-- indented_json (SARIF) against the standard library's json.dumps(indent=2).
+- json_bytes (orjson, for the JSON and SARIF reports) against the standard library's
+  json.dumps, indented and compact: the same text, floats aside, which must read back as
+  the same numbers; and indented_json (its fallback) against json.dumps(indent=2).
 - the text report's word wrapping against the standard library's textwrap.wrap.
 - write_atomic on a target that is not a regular file (POSIX rename(2) would replace a
   device or a FIFO with a plain file).
@@ -32,7 +34,7 @@ from hypothesis import given, settings, strategies as st
 from drc.engine import run_check
 from drc.report import render_json, write_atomic
 from drc.report import jsonreport
-from drc.report.jsonreport import indented_json, prepare
+from drc.report.jsonreport import indented_json, json_bytes, prepare
 from drc.report.text import WIDTH, _wrapped
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -43,8 +45,9 @@ def _full_walk(report: dict) -> str:
     """The JSON text as render_json wrote it before it kept final entries: every value
     walked by plain() and every dict rebuilt in the contract's key order."""
     prepared = prepare(report)
-    return jsonreport._json_text(jsonreport._ordered(prepared, jsonreport._TOP_KEYS,
-                                                     jsonreport._top_children, reuse=False))
+    return jsonreport._json_bytes(jsonreport._ordered(prepared, jsonreport._TOP_KEYS,
+                                                      jsonreport._top_children,
+                                                      reuse=False)).decode("utf-8")
 
 
 @pytest.fixture(scope="module")
@@ -254,6 +257,37 @@ def test_indented_json_is_the_standard_librarys(value):
     # Source: Python's json module, json.dumps(indent=2, ensure_ascii=False, allow_nan=False)
     assert indented_json(value) == json.dumps(value, indent=2, ensure_ascii=False,
                                               allow_nan=False)
+
+
+_EXACT_LEAVES = st.one_of(st.none(), st.booleans(), st.integers(), st.text())
+_EXACT_TREES = st.recursive(_EXACT_LEAVES, lambda inner: st.one_of(
+    st.lists(inner), st.tuples(inner, inner), st.dictionaries(_KEYS, inner)), max_leaves=40)
+
+
+@settings(max_examples=500, deadline=None)
+@given(_EXACT_TREES)
+def test_json_bytes_is_the_standard_librarys_text(value):
+    # Source: Python's json module, json.dumps(ensure_ascii=False, allow_nan=False), indent=2
+    # and compact; no floats here (the one thing written differently, next test). Ints past
+    # 64 bits and keys that are not str take the standard library's own path.
+    assert json_bytes(value, indent=True).decode("utf-8") == json.dumps(
+        value, indent=2, ensure_ascii=False, allow_nan=False) + "\n"
+    assert json_bytes(value, indent=False).decode("utf-8") == json.dumps(
+        value, ensure_ascii=False, allow_nan=False, separators=(",", ":")) + "\n"
+
+
+@settings(max_examples=500, deadline=None)
+@given(_TREES)
+def test_json_bytes_floats_read_back_as_the_same_numbers(value):
+    # Source: RFC 8259 (any JSON reader: Python's json.loads here reads both texts)
+    for indent in (True, False):
+        assert json.loads(json_bytes(value, indent=indent)) == json.loads(json.dumps(value))
+
+
+def test_json_bytes_writes_nan_and_infinities_as_null():
+    # Source: RFC 8259 section 6 (no NaN or Infinity in JSON); plain() makes them null
+    assert json.loads(json_bytes({"a": [math.nan, math.inf, -math.inf, 1.5]})) == {
+        "a": [None, None, None, 1.5]}
 
 
 @pytest.mark.parametrize("value", [math.nan, [1.0, math.inf], {"a": {"b": -math.inf}},

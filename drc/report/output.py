@@ -8,8 +8,8 @@ import secrets
 from drc.errors import InputError, location_of_path
 
 
-def write_atomic(path: str, text: str) -> None:
-    """Write text (UTF-8) to path through a temporary file in the same folder and os.replace.
+def write_atomic(path: str, text: str | bytes) -> None:
+    """Write text (a str, written as UTF-8, or bytes as they are) to path through a temporary file in the same folder and os.replace.
 
     A failure leaves any existing file at path as it was and no temporary file behind; it
     raises InputError "cannot write PATH: REASON" located at the path. A target that exists
@@ -21,7 +21,7 @@ def write_atomic(path: str, text: str) -> None:
         raise InputError(location_of_path(path),
                          f"cannot write {path}: folder {folder} does not exist")
     try:
-        data = text.encode("utf-8")
+        data = text if isinstance(text, bytes) else text.encode("utf-8")
     except UnicodeError as error:
         raise InputError(location_of_path(path), f"cannot write {path}: {error}") from None
     if os.path.exists(path) and not (os.path.isfile(path) or os.path.isdir(path)):

@@ -5,7 +5,7 @@ from __future__ import annotations
 import re
 from urllib.parse import quote
 
-from drc.report.jsonreport import SEVERITIES, FinalEntries, indented_json, plain, prepare
+from drc.report.jsonreport import SEVERITIES, FinalEntries, json_bytes, plain, prepare
 
 SARIF_VERSION = "2.1.0"
 SARIF_SCHEMA_URI = ("https://docs.oasis-open.org/sarif/sarif/v2.1.0/errata01/os/schemas/"
@@ -21,6 +21,11 @@ _URI_SAFE = "/-._~!$&'()*+,;=:@"
 
 def render_sarif(report: dict, rules: list[dict] | None = None) -> str:
     """The report as a SARIF 2.1.0 log (JSON text with a trailing newline), byte-stable."""
+    return render_sarif_bytes(report, rules).decode("utf-8")
+
+
+def render_sarif_bytes(report: dict, rules: list[dict] | None = None) -> bytes:
+    """render_sarif's text as UTF-8 bytes, as drc writes it."""
     report = prepare(report)
     descriptors, index_of = _descriptors(rules or [], report["findings"])
     tool = report.get("tool") or {}
@@ -45,7 +50,7 @@ def render_sarif(report: dict, rules: list[dict] | None = None) -> str:
     run["properties"] = run_properties
 
     log = {"$schema": SARIF_SCHEMA_URI, "version": SARIF_VERSION, "runs": [run]}
-    return indented_json(log) + "\n"
+    return json_bytes(log, indent=True)
 
 
 def artifact_uri(path: str) -> str:
