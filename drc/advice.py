@@ -215,15 +215,20 @@ def series_resistor_advice(design: Design, branch: Branch, led: Led, goal: str =
             "constant-current drive would")
 
 
-def rerun_pump(design: Design, pump, **changes):
+def rerun_pump(design: Design, pump, steady: bool = False, **changes):
     """The pump's model result with changes (series_ohm={pin: ohm}, capacitor_scale={key: x},
-    diode_override={key: DiodeParams}), at every corner; the start-up in its quick form."""
+    diode_override={key: DiodeParams}), at every corner; the start-up in its quick form.
+
+    The search for the changed pump's steady state starts from the pump's own (asked for no
+    change, the full result is the pump's own, from the analysis). steady=True: the steady state alone (about a
+    third of the time); the start-up figures (surge, time to visible) are NaN."""
     from drc.pumps import solve_on_own_corners
     return solve_on_own_corners(pump.region, design.corners,
-                                lambda e: diode_params(design.flat, e), **changes)
+                                lambda e: diode_params(design.flat, e), steady=steady,
+                                warm=bool(changes), **changes)
 
 
-def rerun_pump_variants(design: Design, pump, variants: list[dict]) -> list:
+def rerun_pump_variants(design: Design, pump, variants: list[dict], steady: bool = False) -> list:
     """rerun_pump(design, pump, **v) for each v of `variants`, in ONE run of the model.
 
     Each variant may change series_ohm={pin: ohm} and capacitor_scale={key: x} (values that
@@ -234,8 +239,9 @@ def rerun_pump_variants(design: Design, pump, variants: list[dict]) -> list:
 
     The model's Newton and shooting stop tests look at the whole batch, so a variant's
     figures can differ from its own rerun_pump in the last digits (some 1e-9 relative on the
-    boards measured); a single variant gives exactly rerun_pump's result."""
-    from drc.pumps import expand_result, simulate
+    boards measured); a single variant gives exactly rerun_pump's result. steady as for
+    rerun_pump."""
+    from drc.pumps import expand_result, simulate, steady_start
     allowed = {"series_ohm", "capacitor_scale"}
     for v in variants:
         if set(v) - allowed:
@@ -249,7 +255,7 @@ def rerun_pump_variants(design: Design, pump, variants: list[dict]) -> list:
     if count == 0:
         return []
     if count == 1:
-        return [rerun_pump(design, pump, **variants[0])]
+        return [rerun_pump(design, pump, steady=steady, **variants[0])]
     laid = np.tile(sel, count)
 
     def per_corner(field: str, default: float) -> dict:
@@ -266,9 +272,10 @@ def rerun_pump_variants(design: Design, pump, variants: list[dict]) -> list:
     if scale:
         changes["capacitor_scale"] = scale
     if not changes:        # every variant is the pump as it is (and drc.pumps.simulate would
-        return [rerun_pump(design, pump)] * count     # take a batch of it for the region's own)
+        return [rerun_pump(design, pump, steady=steady)] * count   # take a batch of it for the region's own)
+    start = np.tile(steady_start(region, sel), (count, 1))
     result = simulate(region, corners.subset(laid), lambda e: diode_params(design.flat, e),
-                      fast=True, sel=laid, **changes)
+                      fast=True, sel=laid, start_x=start, steady_only=steady, **changes)
     return [expand_result(result, inverse + k * size) for k in range(count)]
 
 

@@ -26,6 +26,9 @@ periods (reported in `settled`).
 Before that, the model runs `surge_periods` periods from rest (every capacitor empty) for the
 start-up surge, and, where the steady state lights the LED, goes on from rest until the LED's
 one-period average current reaches the visible current (bounded by `max_startup_periods`).
+The shooting starts where the start-up leaves off, or from `start_x` (say, the steady
+state of the same pump before a change). With `steady_only`, the model skips the start-up
+and its figures are NaN.
 
 Simplifications: edges are instantaneous; reverse breakdown (BV) and junction capacitance
 are not modelled; a source with zero output resistance is given 1 mΩ; every node has
@@ -146,6 +149,9 @@ class PumpResult:
     startup_time_s: np.ndarray
     startup_V: dict[str, np.ndarray]
     startup_pin_current_A: dict[str, np.ndarray]
+    # the capacitor voltages (C, ncap) at the start of the steady period, in the order of
+    # the network's capacitors: a re-run of the same pump with a change starts from them
+    steady_x: np.ndarray | None = None
 
 
 def dickson_estimate(vin, vphi, vd, stages, iout, f, c):
@@ -525,7 +531,8 @@ def simulate_periodic(network: PumpNetwork, temperature_K, output_node: str, loa
                       visible_current_A, tolerance_V: float = 1e-4, *,
                       steps_per_phase: int = 10, grading: float = 1.0, max_periods: int = 30,
                       surge_periods: int = 3, simulated_startup_periods: int = 60,
-                      max_startup_periods: int = 2000) -> PumpResult:
+                      max_startup_periods: int = 2000, steady_only: bool = False,
+                      start_x=None) -> PumpResult:
     """The pump's periodic steady state and start-up at every corner (see the module doc).
 
     `temperature_K` and every element value may be (C,) arrays; `visible_current_A` a float
@@ -537,13 +544,19 @@ def simulate_periodic(network: PumpNetwork, temperature_K, output_node: str, loa
     in full up to `simulated_startup_periods` periods (set it to `surge_periods` for speed).
     Beyond that, and for `cycles_to_settle`, the period map linearised at the steady state
     carries the start-up on, up to `max_startup_periods` periods.
+
+    `start_x` (C, ncap), capacitor voltages: where the shooting starts (else where the
+    start-up periods end). `steady_only`: the steady state alone (the shooting starts from
+    `start_x`, or zeros); the surge, the time to visible and the cycles to settle are NaN
+    and the start-up waveforms empty. Either way the steady state is the same to within
+    `tolerance_V`: only where its search starts differs.
     """
     sys = _Compiled(network, temperature_K, steps_per_phase, grading)
     if load_diode is not None and load_diode not in sys.diode_names:
         raise ValueError(f"no diode named {load_diode!r}")
     if output_node not in sys.index and output_node != GROUND:
         raise ValueError(f"node {output_node!r} is not in the network")
-    if surge_periods < 1:
+    if surge_periods < 1 and not steady_only:
         raise ValueError("surge_periods must be at least 1")
     C, T, K = sys.corners, sys.period_s, sys.steps
     load = sys.diode_names.index(load_diode) if load_diode is not None else None
@@ -566,6 +579,8 @@ def simulate_periodic(network: PumpNetwork, temperature_K, output_node: str, loa
     charge_total = np.zeros(C)
     visible_at = np.full(C, np.inf)
     period_average = np.zeros(C)
+    if steady_only:
+        surge_periods = 0
     for p in range(surge_periods):
         run = sys.run_period(x, vj, sensitivity=False)
         V = sys.node_voltages(run["xs"], run["currents"])
@@ -580,12 +595,17 @@ def simulate_periodic(network: PumpNetwork, temperature_K, output_node: str, loa
         charge_prev, charge_total = charge, charge[:, -1]
         x, vj = run["x"], run["vj"]
     x_rest, vj_rest = x.copy(), vj.copy()
+    if steady_only:
+        start_V = [np.zeros((0, C, len(sys.node_names)))]
+        start_pin = [np.zeros((0, C, len(network.pins)))]
     startup_V = np.concatenate(start_V, 0)                                  # (K*p, C, n)
     startup_pin = np.concatenate(start_pin, 0)
     startup_t = (np.arange(surge_periods)[:, None] * T + sys.step_end_s[None]).ravel()
 
     # shooting: Newton on P(x) = x with the exact monodromy matrix
     periods = surge_periods
+    if start_x is not None:
+        x = np.array(np.broadcast_to(np.asarray(start_x, dtype=float), (C, sys.ncap)))
     eye = np.eye(sys.ncap)
     guesses = None
     settled = np.zeros(C, dtype=bool)
@@ -632,12 +652,34 @@ def simulate_periodic(network: PumpNetwork, temperature_K, output_node: str, loa
     for k, name in enumerate(pin_names):
         pin_high[name] = np.where(high[:, k, None], pin_i[:, :, k], -np.inf).max(axis=0)
         pin_low[name] = np.where(~high[:, k, None], -pin_i[:, :, k], -np.inf).max(axis=0)
-        surge[name] = np.abs(startup_pin[:, :, k]).max(axis=0)
+        surge[name] = (np.abs(startup_pin[:, :, k]).max(axis=0) if not steady_only
+                       else np.full(C, np.nan))
     reverse = {name: (Vp[:, :, sys.diode_cathode[k]] - Vp[:, :, sys.diode_anode[k]]).max(axis=0)
                for k, name in enumerate(sys.diode_names)}
     load_average = (load_i * weights).sum(axis=0)
 
     Phi, dq = run["Phi"], run["dq"]
+    steady = dict(period_s=T, peak_V=v_out.max(axis=0), average_V=(v_out * weights).sum(axis=0),
+                  ripple_V=v_out.max(axis=0) - v_out.min(axis=0),
+                  load_average_A=load_average if load is not None else np.full(C, np.nan),
+                  load_peak_A=load_i.max(axis=0) if load is not None else np.full(C, np.nan),
+                  pin_high_peak_A=pin_high, pin_low_peak_A=pin_low,
+                  diode_reverse_max_V=reverse, startup_surge_A=surge, settled=settled,
+                  steady_x=x)
+    names = sys.node_names
+    time_axis = np.concatenate([[0.0], sys.step_end_s])
+    wave = {name: np.concatenate([V[-1:, :, i], V[:, :, i]], 0).T for i, name in enumerate(names)}
+    steady.update(
+        waveform_time_s=time_axis, waveform_V=wave,
+        load_current_A=np.concatenate([load_i[-1:], load_i], 0).T,
+        pin_current_A={name: np.concatenate([pin_i[-1:, :, k], pin_i[:, :, k]], 0).T
+                       for k, name in enumerate(pin_names)},
+        startup_time_s=startup_t,
+        startup_V={name: startup_V[:, :, i].T for i, name in enumerate(names)},
+        startup_pin_current_A={name: startup_pin[:, :, k].T for k, name in enumerate(pin_names)})
+    if steady_only:
+        return PumpResult(time_to_visible_s=np.full(C, np.nan), cycles_to_settle=np.full(C, np.nan),
+                          periods_simulated=periods, **steady)
     pending = ~np.isfinite(visible_at) & (load_average >= visible)
 
     # the start-up in full, for the corners the steady state lights but that are not yet lit
@@ -697,31 +739,5 @@ def simulate_periodic(network: PumpNetwork, temperature_K, output_node: str, loa
     if simulated_to > surge_periods and pending.any():
         extrapolate(x_late - x, late_average, simulated_to, pending, False)
     time_to_visible = np.maximum(visible_at - sys.first_edge_s, 0.0)
-
-    names = sys.node_names
-    time_axis = np.concatenate([[0.0], sys.step_end_s])
-    wave = {name: np.concatenate([V[-1:, :, i], V[:, :, i]], 0).T for i, name in enumerate(names)}
-    return PumpResult(
-        period_s=T,
-        peak_V=v_out.max(axis=0),
-        average_V=(v_out * weights).sum(axis=0),
-        ripple_V=v_out.max(axis=0) - v_out.min(axis=0),
-        load_average_A=load_average if load is not None else np.full(C, np.nan),
-        load_peak_A=load_i.max(axis=0) if load is not None else np.full(C, np.nan),
-        pin_high_peak_A=pin_high,
-        pin_low_peak_A=pin_low,
-        diode_reverse_max_V=reverse,
-        startup_surge_A=surge,
-        time_to_visible_s=time_to_visible,
-        cycles_to_settle=cycles,
-        settled=settled,
-        periods_simulated=periods,
-        waveform_time_s=time_axis,
-        waveform_V=wave,
-        load_current_A=np.concatenate([load_i[-1:], load_i], 0).T,
-        pin_current_A={name: np.concatenate([pin_i[-1:, :, k], pin_i[:, :, k]], 0).T
-                       for k, name in enumerate(pin_names)},
-        startup_time_s=startup_t,
-        startup_V={name: startup_V[:, :, i].T for i, name in enumerate(names)},
-        startup_pin_current_A={name: startup_pin[:, :, k].T for k, name in enumerate(pin_names)},
-    )
+    return PumpResult(time_to_visible_s=time_to_visible, cycles_to_settle=cycles,
+                      periods_simulated=periods, **steady)

@@ -208,7 +208,7 @@ def expand_result(result, inverse):
     out = copy.copy(result)
     for f in dataclasses.fields(result):
         value = getattr(result, f.name)
-        if isinstance(value, np.ndarray) and value.ndim == 1 and f.name not in (
+        if isinstance(value, np.ndarray) and (value.ndim == 1 or f.name == "steady_x") and f.name not in (
                 "startup_time_s", "waveform_time_s"):
             setattr(out, f.name, value[inverse])
         elif isinstance(value, dict) and f.name in ("pin_high_peak_A", "pin_low_peak_A",
@@ -218,24 +218,50 @@ def expand_result(result, inverse):
     return out
 
 
-def solve_on_own_corners(region: PumpRegion, corners, diode_params, **changes):
+def solve_on_own_corners(region: PumpRegion, corners, diode_params, steady: bool = False,
+                         warm: bool = False, **changes):
     """The periodic model on the corners of the region's own rails only, its per-corner
-    figures spread back over every corner (the start-up in its quick, linearised form)."""
+    figures spread back over every corner (the start-up in its quick, linearised form).
+
+    warm: the search for the steady state starts from the region's own solved steady state
+    (a re-run with a change). steady: the steady state alone (warm too); the start-up
+    figures are NaN."""
     labels = {r.label for r in region.rails} | {p.supply for p in region.pins if p.supply}
     sel, inverse = corners.reduce(sorted(labels), capacitors=True)
-    result = simulate(region, corners.subset(sel), diode_params, fast=True, sel=sel, **changes)
+    result = simulate(region, corners.subset(sel), diode_params, fast=True, sel=sel,
+                      start_x=steady_start(region, sel) if steady or warm else None,
+                      steady_only=steady, **changes)
     return expand_result(result, inverse)
 
 
-def simulate(region: PumpRegion, corners, diode_params, fast: bool = False, **changes):
+def steady_start(region: PumpRegion, sel) -> np.ndarray:
+    """The capacitor voltages at the start of the region's solved steady period, at the
+    corners `sel` (zeros where the region has no result yet)."""
+    result = region.result
+    if result is not None and getattr(result, "steady_x", None) is not None:
+        return np.asarray(result.steady_x)[sel]
+    count = len([e for e in region.elements if e.kind == "C"])
+    return np.zeros((len(sel), count))
+
+
+def simulate(region: PumpRegion, corners, diode_params, fast: bool = False,
+             start_x=None, steady_only: bool = False, **changes):
     """Run the periodic model on a region; the first LED is the load. Identical pump cells
-    (the same parts, values and drive under other names) are simulated once."""
+    (the same parts, values and drive under other names) are simulated once.
+
+    start_x, capacitor voltages at each of `corners` (say, the steady state before a
+    change), is where the search for the steady state starts; steady_only skips the
+    start-up, whose figures are then NaN (see drc.pumpmodel.simulate_periodic)."""
     network = network_of(region, corners, diode_params, **changes)
     load = region.leds[0]
     output = region.pumps[0].output_net if region.pumps else load.element.nodes[0]
     options = {"simulated_startup_periods": 3} if fast else {}
-    key, canon = _signature(network, corners, output, load, fast)
-    if not changes or set(changes) == {"sel"}:
+    if start_x is not None or steady_only:
+        options.update(start_x=start_x, steady_only=steady_only)
+    key, canon = _signature(network, corners, output, load,
+                            (fast, steady_only, value_key(np.asarray(start_x, float)))
+                            if start_x is not None or steady_only else fast)
+    if start_x is None and (not changes or set(changes) == {"sel"}):
         region.signature = key        # identical cells share it: fixes are worked out once
     known = SOLUTIONS.get(key)
     if known is not None:

@@ -60,7 +60,7 @@ def check(design, settings):
 
 def _lights(design, pump, led, **changes):
     try:
-        r = rerun_pump(design, pump, **changes)
+        r = rerun_pump(design, pump, steady=True, **changes)
     except Exception:
         return None
     return float(np.min(r.load_average_A))
@@ -71,7 +71,7 @@ def _lights_each(design, pump, led, variants):
     batch of corners; one by one if the batch fails, so that a variant the model cannot
     solve spoils only its own answer, as in _lights."""
     try:
-        results = rerun_pump_variants(design, pump, variants)
+        results = rerun_pump_variants(design, pump, variants, steady=True)
     except Exception:
         return [_lights(design, pump, led, **v) for v in variants]
     return [float(np.min(r.load_average_A)) for r in results]

@@ -270,3 +270,52 @@ def test_bigger_pump_capacitor_helps_slow_flash_not_fast_toggle():
     assert slow >= 1.3
     # ... and little gain at 2 kHz (read as <= 1.15x)
     assert fast <= 1.15
+
+
+WARM_CASES = {
+    # a change as a fix's re-run makes it: the pumping capacitor 2.2 times larger
+    "doubler, pin-charged, reservoir": (lambda: two_pin_doubler(), lambda: two_pin_doubler(pump_F=22e-6), 120),
+    "dickson, 2 stages": (lambda: dickson_ladder(2), lambda: dickson_ladder(2, stage_F=10e-6), 200),
+}
+
+
+@pytest.mark.parametrize("name", list(WARM_CASES))
+def test_steady_state_alone_from_a_warm_start_against_ngspice(name):
+    """The fixes' re-runs: the steady state alone, its search started from the steady
+    state of the pump before the change."""
+    require_ngspice()
+    before, after, periods = WARM_CASES[name]
+    start = simulate_periodic(before(), TEMPERATURE_K, "out", "LED", 0.5e-3).steady_x
+    network = after()
+    model = simulate_periodic(network, TEMPERATURE_K, "out", "LED", 0.5e-3,
+                              steady_only=True, start_x=start)
+    assert model.settled.all()
+    # no start-up was simulated: its figures say so rather than hold a number
+    assert np.isnan(model.time_to_visible_s).all()
+    assert all(np.isnan(v).all() for v in model.startup_surge_A.values())
+    for corner in range(len(CORNERS)):
+        ref = reference(network, corner, "LED", "out", periods)
+        assert abs(ref["average_V"] - ref["average_before_V"]) < 2e-3
+        where = f"{name}, larger capacitor, at {CORNERS[corner]}"
+        # ngspice .tran uic, steady state: the same tolerances as the full model's
+        assert model.peak_V[corner] == pytest.approx(ref["peak_V"], rel=0.05), where
+        assert model.average_V[corner] == pytest.approx(ref["average_V"], rel=0.05), where
+        assert model.load_average_A[corner] == pytest.approx(ref["load_average_A"], rel=0.10), where
+
+
+def test_warm_start_finds_the_same_steady_state_as_a_cold_one():
+    # differential, within the model: both searches run to a tight tolerance, so both are
+    # the one periodic state; what the warm start changes is only where the search begins
+    start = simulate_periodic(two_pin_doubler(), TEMPERATURE_K, "out", "LED", 0.5e-3).steady_x
+    network = two_pin_doubler(pump_F=47e-6)
+    cold = simulate_periodic(network, TEMPERATURE_K, "out", "LED", 0.5e-3, tolerance_V=1e-8,
+                             max_periods=200)
+    warm = simulate_periodic(network, TEMPERATURE_K, "out", "LED", 0.5e-3, tolerance_V=1e-8,
+                             max_periods=200, steady_only=True, start_x=start)
+    assert cold.settled.all() and warm.settled.all()
+    assert warm.periods_simulated < cold.periods_simulated
+    np.testing.assert_allclose(warm.load_average_A, cold.load_average_A, rtol=1e-6)
+    np.testing.assert_allclose(warm.peak_V, cold.peak_V, rtol=1e-6)
+    np.testing.assert_allclose(warm.steady_x, cold.steady_x, atol=1e-6)
+    with pytest.raises(ValueError):
+        simulate_periodic(network, TEMPERATURE_K, "out", "LED", 0.5e-3, surge_periods=0)
