@@ -42,10 +42,32 @@ def _choose(corners, drive, extra_ohm: float, stages, visible_A, max_A) -> Serie
         factor = np.asarray(corners.resistor_factor, float)
         table = np.stack([drive, fixed, temperature_K, factor], axis=1)
         _, sel = np.unique(table, axis=0, return_index=True)
-        current = _candidate_currents(stages, stages_key, table[sel])
+        rows = table[sel]
+        current = _candidate_currents(stages, stages_key, rows[_bounding(rows)])
         known = _verdict(current, visible_A, max_A)
         CHOICES.put(key, known)
     return known
+
+
+def _bounding(rows: np.ndarray) -> np.ndarray:
+    """Which rows (drive V, fixed ohm, temperature K, resistor factor) can hold a
+    candidate's least or greatest current: the verdict reads only those two.
+
+    The current through a string of diodes and a resistance rises with the drive voltage
+    and falls with the resistance (each element's voltage rises with its current), and a
+    candidate's resistance is the fixed ohms plus its value times the row's factor. So at
+    one temperature and fixed resistance, a row with no more drive and no less factor than
+    another, and one of them strictly, carries less current at every candidate: it is
+    never the greatest, and the other never the least. The rows kept are those that nothing
+    bounds from below, and those that nothing bounds from above (at most two per
+    temperature on a full grid of corners)."""
+    drive, fixed, temperature, factor = (rows[:, c] for c in range(4))
+    alike = (temperature[:, None] == temperature[None, :]) & (fixed[:, None] == fixed[None, :])
+    # below[i, j]: row j carries less current than row i at every candidate
+    strict = (drive[None, :] < drive[:, None]) | (factor[None, :] > factor[:, None])
+    below = alike & (drive[None, :] <= drive[:, None]) & (factor[None, :] >= factor[:, None]) & strict
+    # a row with something below it is not a least; with something above (below.T), not a greatest
+    return ~below.any(axis=1) | ~below.any(axis=0)
 
 
 def _candidate_currents(stages, stages_key, rows: np.ndarray) -> np.ndarray:

@@ -68,6 +68,40 @@ def test_choice_shared_between_branches_is_each_branch_own():
     assert advice.ROW_CURRENTS.hits > 0          # the later branches did reuse rows
 
 
+@settings(max_examples=60, deadline=None)
+@given(st.integers(min_value=2, max_value=40), st.integers(min_value=0, max_value=2**32 - 1),
+       st.sampled_from([(RED, 0.5e-3, 10e-3), (WHITE, 0.5e-3, 20e-3)]),
+       st.sampled_from([0.0, 25.0]))
+def test_choice_on_the_bounding_rows_is_the_whole_table(count, seed, led, extra):
+    # corners that are no grid (random drives, temperatures and tolerance ends, some
+    # repeated): the choice read from the rows that bound each candidate's current is the
+    # one read from every row (choose_series_resistor solves the whole table)
+    rng = np.random.default_rng(seed)
+    drive = rng.choice([1.8, 2.0, 2.2, 2.6, 3.0, 3.3], count) + rng.choice([0.0, 0.05], count)
+    corners = Corners({"VBAT": drive}, rng.choice([-20.0, 27.0, 60.0], count),
+                      rng.choice([0.95, 1.0, 1.05], count), np.ones(count), 0)
+    params, visible, maximum = led
+    advice.CHOICES.store.clear()
+    advice.ROW_CURRENTS.store.clear()
+    got = advice._choose(corners, drive, extra, [[params]], visible, maximum)
+    alone = choose_series_resistor(drive, np.full(count, extra), [[params]],
+                                   corners.temperature_K, None, None, visible, maximum,
+                                   candidate_factor=corners.resistor_factor)
+    assert (got.verdict, got.acceptable_ohm, got.best_ohm) == \
+        (alone.verdict, alone.acceptable_ohm, alone.best_ohm)
+    assert got.zero_added_low_current_A == alone.zero_added_low_current_A
+    assert np.array_equal(got.low_current_A, alone.low_current_A)
+    assert np.array_equal(got.high_current_A, alone.high_current_A)
+
+
+def test_bounding_rows_on_a_grid_are_two_per_temperature():
+    rows = np.array([(v, 25.0, t, f) for v in (1.8, 2.0, 2.2) for t in (253.15, 300.15)
+                     for f in (0.95, 1.0, 1.05)])
+    kept = rows[advice._bounding(rows)]
+    assert sorted(map(tuple, kept)) == sorted(
+        [(1.8, 25.0, t, 1.05) for t in (253.15, 300.15)] + [(2.2, 25.0, t, 0.95) for t in (253.15, 300.15)])
+
+
 _E24 = (1.0, 1.1, 1.2, 1.3, 1.5, 1.6, 1.8, 2.0, 2.2, 2.4, 2.7, 3.0,
         3.3, 3.6, 3.9, 4.3, 4.7, 5.1, 5.6, 6.2, 6.8, 7.5, 8.2, 9.1)     # IEC 60063:2015, E24
 _E12 = _E24[::2]
