@@ -169,12 +169,23 @@ def _fill_spreads(spreads: list, nominal: int) -> None:
     numpy compares them in; but for 0.0 and -0.0, which compare equal, which one comes back
     depends on that order, so a zero result is taken again from the array alone, as
     _spread takes it. Anything but a 1-D float64 array long enough for the nominal index
-    goes through _spread itself (which raises for it as it always did)."""
+    goes through _spread itself (which raises for it as it always did).
+
+    Identical cells share their solutions' arrays (a board of 100k elements: some 80k
+    spreads of about a thousand arrays), so each distinct array object is reduced once;
+    every entry still gets a dict of its own. The list holds every array while this runs,
+    so no two of them can share an id."""
     rows: dict[int, list] = {}
+    done: dict[int, tuple] = {}           # id(array) -> (low, nominal, high)
+    waiting: list = []                    # items whose array is reduced for another item
     for item in spreads:
         values = item[2]
         if (type(values) is np.ndarray and values.ndim == 1 and values.dtype == np.float64
                 and nominal < len(values)):
+            if id(values) in done:
+                waiting.append(item)
+                continue
+            done[id(values)] = None
             rows.setdefault(len(values), []).append(item)
         else:
             spread = _spread(values, nominal)
@@ -194,7 +205,10 @@ def _fill_spreads(spreads: list, nominal: int) -> None:
                     high = float(values.max())
                 if not finite:
                     low, middle, high = _finite(low), _finite(middle), _finite(high)
+                done[id(values)] = (low, middle, high)
                 _put_spread(entry, key, low, middle, high)
+    for entry, key, values in waiting:
+        _put_spread(entry, key, *done[id(values)])
 
 
 SPREAD_BLOCK = 64       # arrays per numpy reduction in _fill_spreads (measured: 16 to 128 alike)

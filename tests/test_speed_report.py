@@ -169,6 +169,21 @@ def test_batched_spreads_over_several_blocks():
     assert [repr(e["x_A"]) for e in entries] == [repr(_spread(a, 4)) for a in arrays]
 
 
+def test_shared_arrays_give_each_entry_its_own_spread():
+    # identical cells share one solution's arrays: each array object is reduced once, and
+    # every entry (sorted or not) still gets its own dict with that array's numbers
+    from drc.engine import SORTED_SPREAD, _fill_spreads, _spread
+    rng = np.random.default_rng(5)
+    arrays = [rng.normal(size=9) for _ in range(4)] + [np.array([0.0, -0.0, 0.0])]
+    picks = [arrays[k] for k in rng.integers(0, len(arrays), 300)]
+    entries = [({"x_A": SORTED_SPREAD} if k % 3 == 0 else {}) for k in range(len(picks))]
+    _fill_spreads([(entry, "x_A", a) for entry, a in zip(entries, picks)], 1)
+    for entry, a in zip(entries, picks):
+        wanted = _spread(a, 1)
+        assert repr(dict(sorted(entry["x_A"].items()))) == repr(dict(sorted(wanted.items())))
+    assert len({id(e["x_A"]) for e in entries}) == len(entries)
+
+
 def test_sorted_spreads_are_what_plain_makes_of_low_nominal_high():
     # a pump's pin_currents: analysis.low_nominal_high of each array, through plain()
     from drc.analysis import low_nominal_high
