@@ -189,7 +189,8 @@ class _StageSolver:
 
     Equal diodes in a stage (LEDs of one part number side by side) give equal numbers at
     every step, so each distinct one is evaluated once and its values stand for its equals
-    (`_each`): the same arithmetic as evaluating every diode, done once per kind."""
+    (`_each`): the same arithmetic as evaluating every diode, done once per kind. A stage
+    of equal diodes only shares its current equally, so its voltage is explicit."""
 
     def __init__(self, diodes: list[_Diode], params: list[DiodeParams] | None = None):
         self.diodes = diodes
@@ -212,6 +213,12 @@ class _StageSolver:
             d = self.diodes[0].take(index)
             with np.errstate(over="ignore"):
                 return d.voltage(ls), d.nvt + d.RS * np.exp(ls)
+        if len(self.distinct) == 1:
+            # equal diodes share the current equally: ln(I/m + IS) = ls - ln m, explicit
+            d = self.diodes[0].take(index)
+            lh = ls - math.log(len(self.diodes))
+            with np.errstate(over="ignore"):
+                return d.voltage(lh), d.nvt + d.RS * np.exp(lh)
         diodes = [d.take(index) if j in self.distinct else None for j, d in enumerate(self.diodes)]
         # Each diode carries at most all of it and one carries at least its m-th share.
         hi = np.minimum.reduce(self._each(diodes, lambda d: d.voltage(ls)))
@@ -250,6 +257,9 @@ class _StageSolver:
     def currents(self, v: np.ndarray, stage_current: np.ndarray) -> list[np.ndarray]:
         if len(self.diodes) == 1:
             return [stage_current]
+        if len(self.distinct) == 1:          # equal diodes: an equal share each
+            share = stage_current / len(self.diodes)
+            return [share.copy() for _ in self.diodes]
         return [c.copy() for c in self._each(self.diodes, lambda d: d.current(v))]
 
 

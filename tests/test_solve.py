@@ -63,6 +63,9 @@ CIRCUITS = {
         "V1 a 0 DC 3.3\nR1 a b 47\nD1 b 0 LW\nD2 b 0 LR\nD3 b 0 LA\n" + card("LW", WHITE)
         + "\n" + card("LR", RED) + "\n" + card("LA", AMBER),
         3.3, 47.0, [[WHITE, RED, AMBER]], [["@d1[id]", "@d2[id]", "@d3[id]"]]),
+    "two equal in parallel": (       # one part number side by side: the explicit stage
+        "V1 a 0 DC 3.3\nR1 a b 47\nD1 b 0 LW\nD2 b 0 LW\n" + card("LW", WHITE),
+        3.3, 47.0, [[WHITE, WHITE]], [["@d1[id]", "@d2[id]"]]),
     "LED with RS": (
         "V1 a 0 DC 3.6\nR1 a b 68\nD1 b 0 LW\n" + card("LW", WHITE),
         3.6, 68.0, [[WHITE]], [["@d1[id]"]]),
@@ -119,6 +122,18 @@ diodes = st.builds(
 @given(stages=st.lists(st.lists(diodes, min_size=1, max_size=3), min_size=1, max_size=3),
        seed=st.integers(0, 2 ** 32 - 1))
 def test_solution_satisfies_kirchhoff_and_shockley(stages, seed):
+    _satisfies_kirchhoff_and_shockley(stages, seed)
+
+
+@settings(max_examples=30, deadline=None)
+@given(stages=st.lists(st.tuples(diodes, st.integers(2, 4)), min_size=1, max_size=3),
+       seed=st.integers(0, 2 ** 32 - 1))
+def test_equal_diodes_side_by_side_satisfy_kirchhoff_and_shockley(stages, seed):
+    # one part number side by side in each stage (its voltage is worked out explicitly)
+    _satisfies_kirchhoff_and_shockley([[d] * m for d, m in stages], seed)
+
+
+def _satisfies_kirchhoff_and_shockley(stages, seed):
     rng = np.random.default_rng(seed)
     corners = 24
     drive = rng.uniform(-10, 10, corners)
