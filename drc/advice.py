@@ -163,9 +163,17 @@ def branch_cautions(design: Design, branch: Branch) -> str:
 
 
 def _stages(design: Design, branch: Branch):
+    """The branch's stages as diode parameters (a list per stage). Worked out once per
+    branch and kept on it (a design is read-only once analysed); the rules ask for it once
+    per finding, and several rules about one branch."""
+    kept = branch.__dict__.get("_stage_params")
+    if kept is not None and kept[0] is design.flat:       # (the flat design: no cycle)
+        return kept[1]
     led_params = {l.element.key: l.params for l in branch.leds}
-    return [[led_params[d.key] if d.key in led_params else diode_params(design.flat, d) for d in st]
-            for st in branch.stages]
+    stages = [[led_params[d.key] if d.key in led_params else diode_params(design.flat, d) for d in st]
+              for st in branch.stages]
+    branch.__dict__["_stage_params"] = (design.flat, stages)
+    return stages
 
 
 _DROPS: dict = {}        # (each stage's first diode and size, current, temperature) -> volts

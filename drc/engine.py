@@ -464,15 +464,56 @@ def _finding_json(f: Finding) -> dict:
     with sorted keys, as the JSON report writes them (see FinalEntries). A house rule may
     put anything in a Finding, so what is not an exact str (or int) already goes through
     plain(), as the report's full walk would take it."""
-    values = {k: (float(v) if isinstance(v, (int, float)) or hasattr(v, "item") else v)
-              for k, v in f.values.items()}
+    values = _plain_floats(f.values)
+    if values is None:
+        values = plain({k: (float(v) if isinstance(v, (int, float)) or hasattr(v, "item") else v)
+                        for k, v in f.values.items()})
+    corner = _plain_corner(f.corner) if type(f.corner) is dict else None
+    if corner is None:
+        corner = plain(f.corner)
     location = f.location
     return {"rule": _leaf(f.rule), "severity": _leaf(f.severity), "message": _leaf(f.message),
             "location": {"path": _leaf(location.path), "line": _leaf(location.line),
                          "column": _leaf(location.column)},
             "elements": _names(f.elements), "nets": _names(f.nets),
-            "corner": plain(f.corner), "values": plain(values), "fix": _leaf(f.fix),
+            "corner": corner, "values": values, "fix": _leaf(f.fix),
             "caution": _leaf(f.caution)}
+
+
+def _plain_floats(values) -> dict | None:
+    """plain() of a finding's values made floats, for the usual dict of str keys and exact
+    floats: the same dict, keys sorted, a NaN or infinity as None; None for anything else
+    (which takes the general path)."""
+    if type(values) is not dict:
+        return None
+    out = {}
+    for key in sorted(values) if _STR_ONLY.issuperset(map(type, values)) else ():
+        value = values[key]
+        if type(value) is not float:
+            return None
+        out[key] = value if math.isfinite(value) else None
+    return out if len(out) == len(values) else None
+
+
+def _plain_corner(corner: dict) -> dict | None:
+    """plain(corner) for a corner as drc.advice.corner makes it (str keys; exact str,
+    float, int or None values, or such a dict one level down); None for anything else."""
+    if not _STR_ONLY.issuperset(map(type, corner)):
+        return None
+    out = {}
+    for key in sorted(corner):
+        value = corner[key]
+        kind = type(value)
+        if kind is float:
+            value = value if math.isfinite(value) else None
+        elif kind is dict:
+            value = _plain_floats(value)
+            if value is None:
+                return None
+        elif not (kind is str or kind is int or value is None):
+            return None
+        out[key] = value
+    return out
 
 
 def _leaf(value):

@@ -109,6 +109,16 @@ def at_or_above(value: float, name: str = "E24") -> float:
     >>> at_or_above(4701.0, "E24")
     5100.0
     """
+    try:
+        return _at_or_above(value, name)
+    except TypeError:                 # an unhashable value: the plain path says what it is
+        return _at_or_above.__wrapped__(value, name)
+
+
+@functools.lru_cache(maxsize=4096)
+def _at_or_above(value, name: str) -> float:
+    """at_or_above, remembered: a pure function of its two arguments, asked for the same
+    few values once per finding (a pin's limit, say) by thousands of findings."""
     v = _check_positive(value)
     return next(c for c in _around(v, name) if c >= v * (1 - _SLACK))
 

@@ -422,3 +422,28 @@ def test_run_on_a_closed_pipe_exits_as_an_ordinary_exit_does():
     # a closed pipe drops the output, not the verdict: coin_tag's check is clean (status 0),
     # and nothing is said on stderr
     assert outcomes[0] == (0, b"")
+
+
+_LEAVES = st.one_of(st.floats(), st.sampled_from([0.0, -0.0, math.nan, math.inf]), st.integers(-5, 5),
+                    st.booleans(), st.none(), st.text(max_size=3),
+                    st.builds(np.float64, st.floats()), st.builds(np.int64, st.integers(-5, 5)))
+_KEYS = st.one_of(st.text(max_size=4), st.integers(0, 3))
+
+
+@settings(max_examples=400, deadline=None)
+@given(st.dictionaries(_KEYS, _LEAVES, max_size=5),
+       st.one_of(st.none(), st.dictionaries(_KEYS, st.one_of(_LEAVES, st.dictionaries(_KEYS, _LEAVES, max_size=3)),
+                                            max_size=4)))
+def test_finding_json_values_and_corner_are_what_plain_makes(values, corner):
+    # the usual shapes (str keys, exact floats; a corner of str, floats and a dict of
+    # floats) take a short path; whatever they are, the result is the general path's:
+    # each value made a float where it is a number, then plain(), to the bit (by repr)
+    from drc.api import Finding, Location
+    from drc.engine import _finding_json
+    f = Finding(message="m", location=Location("a.cir", 1, 1), values=values, corner=corner,
+                rule="r", severity="note")
+    got = _finding_json(f)
+    wanted_values = jsonreport.plain({k: (float(v) if isinstance(v, (int, float)) or hasattr(v, "item")
+                                          else v) for k, v in values.items()})
+    assert repr(got["values"]) == repr(wanted_values)
+    assert repr(got["corner"]) == repr(jsonreport.plain(corner))
