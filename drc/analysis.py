@@ -285,10 +285,12 @@ class Led:
     max_reverse_V: float
     eye_safety: bool
     model_from: str                 # "netlist" or "default"
+    # the element's name, kept as a field: the rules and the report read it some ten times
+    # per LED, and a property call costs more than the lookup
+    name: str = field(init=False, repr=False, compare=False)
 
-    @property
-    def name(self) -> str:
-        return self.element.name
+    def __post_init__(self) -> None:
+        self.name = self.element.name
 
 
 @dataclass
