@@ -166,12 +166,9 @@ CIRCUITS = {
 }
 
 
-@pytest.mark.parametrize("name", list(CIRCUITS))
-def test_against_ngspice(name):
-    require_ngspice()
-    make, periods = CIRCUITS[name]
-    network = make()
-    model = simulate_periodic(network, TEMPERATURE_K, "out", "LED", 0.5e-3)
+def _steady_state_against_ngspice(model, network, periods, name):
+    """The model's steady state at each corner against ngspice's; yields (corner, the
+    reference run, a label) for a test's further checks."""
     assert model.settled.all()
     for corner in range(len(CORNERS)):
         ref = reference(network, corner, "LED", "out", periods)
@@ -184,6 +181,16 @@ def test_against_ngspice(name):
         assert model.average_V[corner] == pytest.approx(ref["average_V"], rel=0.05), where
         # ngspice: the LED's average current within 10%
         assert model.load_average_A[corner] == pytest.approx(ref["load_average_A"], rel=0.10), where
+        yield corner, ref, where
+
+
+@pytest.mark.parametrize("name", list(CIRCUITS))
+def test_against_ngspice(name):
+    require_ngspice()
+    make, periods = CIRCUITS[name]
+    network = make()
+    model = simulate_periodic(network, TEMPERATURE_K, "out", "LED", 0.5e-3)
+    for corner, ref, where in _steady_state_against_ngspice(model, network, periods, name):
         # ngspice: greatest |pin current| in the first three periods from rest, within 10%
         surge = max(model.startup_surge_A[p.name][corner] for p in network.pins)
         assert surge == pytest.approx(ref["surge_A"], rel=0.10), where
@@ -289,18 +296,11 @@ def test_steady_state_alone_from_a_warm_start_against_ngspice(name):
     network = after()
     model = simulate_periodic(network, TEMPERATURE_K, "out", "LED", 0.5e-3,
                               steady_only=True, start_x=start)
-    assert model.settled.all()
     # no start-up was simulated: its figures say so rather than hold a number
     assert np.isnan(model.time_to_visible_s).all()
     assert all(np.isnan(v).all() for v in model.startup_surge_A.values())
-    for corner in range(len(CORNERS)):
-        ref = reference(network, corner, "LED", "out", periods)
-        assert abs(ref["average_V"] - ref["average_before_V"]) < 2e-3
-        where = f"{name}, larger capacitor, at {CORNERS[corner]}"
-        # ngspice .tran uic, steady state: the same tolerances as the full model's
-        assert model.peak_V[corner] == pytest.approx(ref["peak_V"], rel=0.05), where
-        assert model.average_V[corner] == pytest.approx(ref["average_V"], rel=0.05), where
-        assert model.load_average_A[corner] == pytest.approx(ref["load_average_A"], rel=0.10), where
+    # the same tolerances as the full model's
+    list(_steady_state_against_ngspice(model, network, periods, f"{name}, larger capacitor"))
 
 
 def test_warm_start_finds_the_same_steady_state_as_a_cold_one():
