@@ -249,9 +249,10 @@ def rerun_pump(design: Design, pump, steady: bool = False, **changes):
     """The pump's model result with changes (series_ohm={pin: ohm}, capacitor_scale={key: x},
     diode_override={key: DiodeParams}), at every corner; the start-up in its quick form.
 
-    The search for the changed pump's steady state starts from the pump's own (asked for no
-    change, the full result is the pump's own, from the analysis). steady=True: the steady state alone (about a
-    third of the time); the start-up figures (surge, time to visible) are NaN."""
+    The search for the changed pump's steady state starts from the pump's own (asked for
+    no change, the full result is the pump's own, from the analysis). steady=True: the
+    steady state alone (about a third of the time); the start-up figures (surge, time to
+    visible) are NaN."""
     from drc.pumps import solve_on_own_corners
     return solve_on_own_corners(pump.region, design.corners,
                                 lambda e: diode_params(design.flat, e), steady=steady,

@@ -208,8 +208,8 @@ def expand_result(result, inverse):
     out = copy.copy(result)
     for f in dataclasses.fields(result):
         value = getattr(result, f.name)
-        if isinstance(value, np.ndarray) and (value.ndim == 1 or f.name == "steady_x") and f.name not in (
-                "startup_time_s", "waveform_time_s"):
+        per_corner = value.ndim == 1 or f.name == "steady_x" if isinstance(value, np.ndarray) else False
+        if per_corner and f.name not in ("startup_time_s", "waveform_time_s"):
             setattr(out, f.name, value[inverse])
         elif isinstance(value, dict) and f.name in ("pin_high_peak_A", "pin_low_peak_A",
                                                      "diode_reverse_max_V", "startup_surge_A"):
