@@ -825,6 +825,12 @@ def _is_wire(e: Element) -> bool:
     return e.kind == "V" and (e.value or 0.0) == 0.0 and (e.source is None or e.source.waveform is None)
 
 
+# A string whose two walks both end at a rail, a pin or ground is taken as it is, without
+# working out the region around it (the same answer: tests/test_speed_trace.py turns this
+# off to check).
+_STRING_SHORTCUT = True
+
+
 def _trace_branches(flat, terminals, supplies, pins, leds, corners, notes) -> list[Branch]:
     rail_nets = {s.net: s for s in supplies.values()}
     pin_nets = {p.net: p for p in pins.values()}
@@ -902,10 +908,19 @@ def _trace_branches(flat, terminals, supplies, pins, leds, corners, notes) -> li
         cathode_end, down_path, down_stages = walk(k, came2)
         path = list(reversed(up_path)) + group + down_path
         stages = list(reversed(up_stages)) + [group] + down_stages
-        r_nets, r_elements, problem = region(e)
-        dc_elements = [x for x in r_elements if x.kind != "C"]
-        pumped = [x for x in r_elements if x.kind == "C" and (x.nodes[0] in toggling or x.nodes[1] in toggling)]
-        is_string = problem is None and not pumped and {x.key for x in dc_elements} == {x.key for x in path}
+        if (_STRING_SHORTCUT and anode_end in stops and cathode_end in stops
+                and (len(group) == 1 or a not in stops or k not in stops)):
+            # both walks reached a rail, a pin or ground through nets of exactly two
+            # terminals each (a walk ends at any other net), so the region around the LED
+            # is the string itself: no capacitor, no other part, nothing unsolvable. (LEDs
+            # side by side straight across two stops are no string: the region of one of
+            # them, which stops at those nets, holds it alone.)
+            is_string = True
+        else:
+            r_nets, r_elements, problem = region(e)
+            dc_elements = [x for x in r_elements if x.kind != "C"]
+            pumped = [x for x in r_elements if x.kind == "C" and (x.nodes[0] in toggling or x.nodes[1] in toggling)]
+            is_string = problem is None and not pumped and {x.key for x in dc_elements} == {x.key for x in path}
         region_leds = [leds[x.key] for x in r_elements if x.key in leds] if not is_string else \
             [leds[d.key] for st in stages for d in st if d.key in leds]
         seen.update(l.element.key for l in region_leds)

@@ -15,6 +15,7 @@ import sys
 
 import numpy as np
 import pytest
+from hypothesis import given, settings, strategies as st
 
 sys.path.insert(0, os.path.dirname(__file__))
 import ngspice  # noqa: E402  (tests/ngspice.py, the harness)
@@ -117,3 +118,65 @@ def test_the_one_led_string_gets_what_it_gets_solved_alone(design):
                              [[b.leds[0].params]], t)
         assert np.array_equal(b.current_A[ident], np.maximum(alone.diode_current_A[0][0], 0.0))
     assert np.array_equal(by_id["D4"].current_A["D4"], by_id["D5"].current_A["D5"])
+
+
+def _traced(path):
+    """Each branch as (id, drive, source, elements, nets, stages, leds, note, network)."""
+    from pathlib import Path
+    design = analyse(expand(str(path)), load_context(Path(path), None, rule_ids=None))
+    return [(b.id, b.drive, b.source, [e.key for e in b.elements], list(b.nets),
+             [[d.key for d in st] for st in b.stages], [l.name for l in b.leds], b.note,
+             None if b.network is None else ([e.key for e in b.network.elements], b.network.nets),
+             None if b.pump_region is None else [p.id for p in b.pump_region.pumps])
+            for b in design.branches]
+
+
+def _decks():
+    from pathlib import Path
+    root = Path(__file__).resolve().parent.parent
+    found = sorted((root / "tests" / "netlists").rglob("*.cir")) + sorted((root / "samples").glob("*.cir"))
+    return [p for p in found if "bad" not in p.parts]
+
+
+@pytest.mark.parametrize("deck", _decks(), ids=lambda p: p.name)
+def test_string_shortcut_traces_what_the_region_walk_traces(deck, monkeypatch):
+    # a string whose two walks end at stops skips the region walk; the branches must be
+    # exactly those the region walk gives (every test netlist and sample)
+    from drc import analysis
+    from drc.errors import InputError, InputErrors
+    try:
+        fast = _traced(deck)
+    except (InputError, InputErrors):
+        return                                   # a deck the reader refuses on purpose
+    monkeypatch.setattr(analysis, "_STRING_SHORTCUT", False)
+    assert _traced(deck) == fast
+
+
+RANDOM_PARTS = ("R", "R", "D", "C", "X")
+
+
+@settings(max_examples=150, deadline=None)
+@given(st.lists(st.tuples(st.sampled_from(RANDOM_PARTS), st.integers(0, 5), st.integers(0, 5)),
+                min_size=1, max_size=12))
+def test_string_shortcut_on_random_topologies(parts):
+    # random nets 0 (ground), n1..n5, a rail on n1, a toggling pin on n2: whatever hangs
+    # where, the shortcut traces what the region walk traces
+    import tempfile
+    from pathlib import Path
+    from drc import analysis
+    lines = ["* random", ".model LW D(IS=3e-18 N=3.0 RS=10)", "V1 n1 0 DC 3.0",
+             "VP n2 0 PULSE(0 3 0 1n 1n 0.25m 0.5m)", "DA n3 0 LW"]
+    value = {"R": "100", "C": "1u", "D": "LW"}
+    for k, (kind, a, b) in enumerate(parts):
+        na, nb = ("0" if a == 0 else f"n{a}"), ("0" if b == 0 else f"n{b}")
+        lines.append(f"X{k} {na} {nb} BOX" if kind == "X" else f"{kind}{k} {na} {nb} {value[kind]}")
+    lines.append(".end")
+    with tempfile.TemporaryDirectory() as folder:
+        path = Path(folder) / "r.cir"
+        path.write_text("\n".join(lines) + "\n")
+        fast = _traced(path)
+        analysis._STRING_SHORTCUT = False
+        try:
+            assert _traced(path) == fast
+        finally:
+            analysis._STRING_SHORTCUT = True
