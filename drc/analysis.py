@@ -1176,14 +1176,14 @@ def _classify_alike(b: Branch, rail_nets, pin_nets, corners: Corners, plans: dic
     if plan is None:
         _classify(b, rail_nets, pin_nets, corners)
         plans[ends] = False if b.note is not None else (
-            b.reversed, b.drive, b.source, b.supply, b.pin, b.sink_pin,
-            [(ph.share, ph.drive_V, ph.extra_resistance_ohm, ph.words, ph.drive_key) for ph in b.phases])
+            b.reversed, b.drive, b.source, b.supply, b.pin, b.sink_pin, tuple(b.phases))
         return
     if plan is False:
         _classify(b, rail_nets, pin_nets, corners)
         return
+    # the Phase objects are shared (a design is read-only once analysed), each list is its own
     b.reversed, b.drive, b.source, b.supply, b.pin, b.sink_pin, phases = plan
-    b.phases = [Phase(share, v, ohm, words, drive_key=key) for share, v, ohm, words, key in phases]
+    b.phases = list(phases)
 
 
 def _classify(b: Branch, rail_nets, pin_nets, corners: Corners) -> None:
