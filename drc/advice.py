@@ -21,7 +21,8 @@ ROW_CURRENTS = Memo(limit=16384)    # rows of 146 currents: at most some 19 MB
 _SERIES, _LOWEST_OHM, _HIGHEST_OHM = "E24", 1.0, 1e6
 
 
-def _choose(corners, drive, extra_ohm: float, stages, visible_A, max_A) -> SeriesResistorChoice:
+def _choose(corners, drive, extra_ohm: float, stages, visible_A, max_A, *, drive_key: bytes = b"",
+            stages_id=None) -> SeriesResistorChoice:
     """What choose_series_resistor(drive, extra_ohm, stages, temperature, None, None,
     visible_A, max_A, candidate_factor=resistor_factor) gives, on the corners that bound the
     branch: the distinct combinations of drive, temperature and tolerance (np.unique's
@@ -29,12 +30,15 @@ def _choose(corners, drive, extra_ohm: float, stages, visible_A, max_A) -> Serie
 
     The key holds everything the choice depends on: the corner set (its serial stands for
     its temperatures and resistor factors, fixed for its life), the drive at every corner,
-    the resistance outside the branch, the diodes' parameters, and the two currents."""
+    the resistance outside the branch, the diodes' parameters, and the two currents.
+    drive_key, if given, is drive.tobytes() already made (a Phase's, shared by the strings
+    on one pair of nets, so its hash is worked out once); stages_id is _stage_id(stages)."""
     drive = np.asarray(drive, float)
-    stages_key = tuple(tuple(s) for s in stages)
-    key = (corners.serial, drive.shape, drive.tobytes(), extra_ohm, stages_key, visible_A, max_A)
+    key = (corners.serial, drive.shape, drive_key or drive.tobytes(), extra_ohm,
+           _stage_id(stages) if stages_id is None else stages_id, visible_A, max_A)
     known = CHOICES.get(key)
     if known is None:
+        stages_key = tuple(tuple(s) for s in stages)
         if not (visible_A > 0 and max_A > 0):
             raise InputError(None, "visible and maximum currents must be positive")
         fixed = np.full(corners.count, extra_ohm)
@@ -47,6 +51,19 @@ def _choose(corners, drive, extra_ohm: float, stages, visible_A, max_A) -> Serie
         known = _verdict(current, visible_A, max_A)
         CHOICES.put(key, known)
     return known
+
+
+_STAGE_IDS: dict = {}      # a string's diode parameters, stage by stage -> a small number
+
+
+def _stage_id(stages) -> int:
+    """A number for the string's diodes (equal parameters, equal numbers): a key that
+    costs no hashing of the parameters once a branch has it (see _stages)."""
+    content = tuple(tuple(s) for s in stages)
+    found = _STAGE_IDS.get(content)
+    if found is None:
+        found = _STAGE_IDS[content] = len(_STAGE_IDS)
+    return found
 
 
 def _bounding(rows: np.ndarray) -> np.ndarray:
@@ -163,27 +180,34 @@ def branch_cautions(design: Design, branch: Branch) -> str:
 
 
 def _stages(design: Design, branch: Branch):
-    """The branch's stages as diode parameters (a list per stage). Worked out once per
-    branch and kept on it (a design is read-only once analysed); the rules ask for it once
-    per finding, and several rules about one branch."""
+    """The branch's stages as diode parameters (a list per stage)."""
+    return _stages_and_id(design, branch)[0]
+
+
+def _stages_and_id(design: Design, branch: Branch):
+    """(_stages, _stage_id of them). Worked out once per branch and kept on it (a design
+    is read-only once analysed); the rules ask for it once per finding, and several rules
+    about one branch."""
     kept = branch.__dict__.get("_stage_params")
     if kept is not None and kept[0] is design.flat:       # (the flat design: no cycle)
         return kept[1]
     led_params = {l.element.key: l.params for l in branch.leds}
     stages = [[led_params[d.key] if d.key in led_params else diode_params(design.flat, d) for d in st]
               for st in branch.stages]
-    branch.__dict__["_stage_params"] = (design.flat, stages)
-    return stages
+    found = (stages, _stage_id(stages))
+    branch.__dict__["_stage_params"] = (design.flat, found)
+    return found
 
 
 _DROPS: dict = {}        # (each stage's first diode and size, current, temperature) -> volts
 
 
-def _string_drop(stages, current_A: float, t: float) -> float:
+def _string_drop(stages, current_A: float, t: float, stages_id=None) -> float:
     """The diodes' share of needed_voltage: each stage's forward voltage at its share of
     `current_A`, summed in order. Repeated cells ask for the same few, so each distinct
-    one is worked out once (a positive current: -0.0 and 0.0 would share a key)."""
-    key = (tuple((stage[0], len(stage)) for stage in stages), current_A, t)
+    one is worked out once (a positive current: -0.0 and 0.0 would share a key).
+    stages_id is _stage_id(stages), if known."""
+    key = (_stage_id(stages) if stages_id is None else stages_id, current_A, t)
     found = _DROPS.get(key) if current_A > 0 else None
     if found is None:
         found = 0.0
@@ -197,7 +221,8 @@ def _string_drop(stages, current_A: float, t: float) -> float:
 def needed_voltage(design: Design, branch: Branch, current_A: float, index: int) -> float:
     """The drive voltage the string needs to carry `current_A` at corner `index`."""
     t = float(design.corners.temperature_K[index])
-    total = _string_drop(_stages(design, branch), current_A, t)
+    stages, stages_id = _stages_and_id(design, branch)
+    total = _string_drop(stages, current_A, t, stages_id)
     # branch.on_drive()'s resistance at this one corner (it adds the two at every corner)
     resistance = branch.series_resistance_ohm[index] + branch.phases[branch.lit_phase].extra_resistance_ohm
     return total + current_A * float(resistance)
@@ -212,9 +237,11 @@ def series_resistor_advice(design: Design, branch: Branch, led: Led, goal: str =
     phase = branch.phases[branch.lit_phase]
     share = max(phase.share, 1e-9)
     drive = phase.drive_V
-    stages = _stages(design, branch)
+    stages, stages_id = _stages_and_id(design, branch)
+    drive_key = phase.drive_key if type(drive) is np.ndarray and drive.dtype == np.float64 else b""
     choice = _choose(design.corners, drive, phase.extra_resistance_ohm, stages,
-                     led.visible_current_A / share, led.max_current_A)
+                     led.visible_current_A / share, led.max_current_A, drive_key=drive_key,
+                     stages_id=stages_id)
     have = ", ".join(f"{r.name} {preferred.format_resistance(r.value)}" for r in branch.resistors) or "no resistor"
     if choice.verdict == "ok":
         low = choice.acceptable_ohm[0]
@@ -225,7 +252,7 @@ def series_resistor_advice(design: Design, branch: Branch, led: Led, goal: str =
                 f"{preferred.format_resistance(low)} to {preferred.format_resistance(high)} does")
     if choice.verdict == "too-dim" and goal == "max":
         cap = _choose(design.corners, drive, phase.extra_resistance_ohm, stages,
-                      1e-12, led.max_current_A)
+                      1e-12, led.max_current_A, drive_key=drive_key, stages_id=stages_id)
         if cap.acceptable_ohm:
             return (f"use at least {preferred.format_resistance(cap.acceptable_ohm[0])} (E24, IEC 60063) "
                     f"in place of {have} to stay under {format_quantity(led.max_current_A, 'A')} at the high "

@@ -84,6 +84,10 @@ def test_choice_on_the_bounding_rows_is_the_whole_table(count, seed, led, extra)
     advice.CHOICES.store.clear()
     advice.ROW_CURRENTS.store.clear()
     got = advice._choose(corners, drive, extra, [[params]], visible, maximum)
+    # the key a branch's advice makes from its Phase's bytes and its stages' number is the
+    # same key: the same remembered choice comes back
+    assert advice._choose(corners, drive, extra, [[params]], visible, maximum,
+                          drive_key=drive.tobytes(), stages_id=advice._stage_id([[params]])) is got
     alone = choose_series_resistor(drive, np.full(count, extra), [[params]],
                                    corners.temperature_K, None, None, visible, maximum,
                                    candidate_factor=corners.resistor_factor)
