@@ -45,7 +45,9 @@ def check(design, settings):
     totals = {}
     for branch in design.branches:
         for label, current in branch.pin_current_A.items():
-            entry = totals.setdefault(label, [np.zeros(design.corners.count), []])
+            entry = totals.get(label)
+            if entry is None:
+                entry = totals[label] = [np.zeros(design.corners.count), []]
             entry[0] = entry[0] + current
             entry[1].append(branch)
     for label, (current, branches) in totals.items():
