@@ -179,15 +179,10 @@ def branch_cautions(design: Design, branch: Branch) -> str:
     return " ".join(parts)
 
 
-def _stages(design: Design, branch: Branch):
-    """The branch's stages as diode parameters (a list per stage)."""
-    return _stages_and_id(design, branch)[0]
-
-
 def _stages_and_id(design: Design, branch: Branch):
-    """(_stages, _stage_id of them). Worked out once per branch and kept on it (a design
-    is read-only once analysed); the rules ask for it once per finding, and several rules
-    about one branch."""
+    """(the branch's stages as diode parameters, a list per stage; _stage_id of them).
+    Worked out once per branch and kept on it (a design is read-only once analysed); the
+    rules ask for it once per finding, and several rules about one branch."""
     kept = branch.__dict__.get("_stage_params")
     if kept is not None and kept[0] is design.flat:       # (the flat design: no cycle)
         return kept[1]
@@ -331,7 +326,8 @@ def rerun_pump_variants(design: Design, pump, variants: list[dict], steady: bool
         changes["capacitor_scale"] = scale
     if not changes:        # every variant is the pump as it is (and drc.pumps.simulate would
         return [rerun_pump(design, pump, steady=steady)] * count   # take a batch of it for the region's own)
-    start = np.tile(steady_start(region, sel), (count, 1))
+    start = steady_start(region, sel)
+    start = np.tile(start, (count, 1)) if start is not None else None
     result = simulate(region, corners.subset(laid), lambda e: diode_params(design.flat, e),
                       fast=True, sel=laid, start_x=start, steady_only=steady, **changes)
     return [expand_result(result, inverse + k * size) for k in range(count)]

@@ -484,15 +484,15 @@ def _plain_floats(values) -> dict | None:
     """plain() of a finding's values made floats, for the usual dict of str keys and exact
     floats: the same dict, keys sorted, a NaN or infinity as None; None for anything else
     (which takes the general path)."""
-    if type(values) is not dict:
+    if type(values) is not dict or not _STR_ONLY.issuperset(map(type, values)):
         return None
     out = {}
-    for key in sorted(values) if _STR_ONLY.issuperset(map(type, values)) else ():
+    for key in sorted(values):
         value = values[key]
         if type(value) is not float:
             return None
         out[key] = value if math.isfinite(value) else None
-    return out if len(out) == len(values) else None
+    return out
 
 
 def _plain_corner(corner: dict) -> dict | None:

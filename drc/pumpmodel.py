@@ -151,6 +151,7 @@ class PumpResult:
     startup_pin_current_A: dict[str, np.ndarray]
     # the capacitor voltages (C, ncap) at the start of the steady period, in the order of
     # the network's capacitors: a re-run of the same pump with a change starts from them
+    # (drc.pumps.expand_result leaves them on the reduced corners, as the waveforms)
     steady_x: np.ndarray | None = None
 
 

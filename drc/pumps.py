@@ -201,15 +201,15 @@ SOLUTIONS = Memo(limit=1024)
 
 def expand_result(result, inverse):
     """A result on reduced corners, its per-corner figures spread back over every corner.
-    Waveforms (corner x time) stay on the reduced corners: `corner_index[i]` is the row
-    that stands for corner i."""
+    Waveforms (corner x time) and the steady state's capacitor voltages stay on the reduced
+    corners: `corner_index[i]` is the row that stands for corner i."""
     import copy
     import dataclasses
     out = copy.copy(result)
     for f in dataclasses.fields(result):
         value = getattr(result, f.name)
-        per_corner = value.ndim == 1 or f.name == "steady_x" if isinstance(value, np.ndarray) else False
-        if per_corner and f.name not in ("startup_time_s", "waveform_time_s"):
+        if isinstance(value, np.ndarray) and value.ndim == 1 and f.name not in (
+                "startup_time_s", "waveform_time_s"):
             setattr(out, f.name, value[inverse])
         elif isinstance(value, dict) and f.name in ("pin_high_peak_A", "pin_low_peak_A",
                                                      "diode_reverse_max_V", "startup_surge_A"):
@@ -234,14 +234,15 @@ def solve_on_own_corners(region: PumpRegion, corners, diode_params, steady: bool
     return expand_result(result, inverse)
 
 
-def steady_start(region: PumpRegion, sel) -> np.ndarray:
+def steady_start(region: PumpRegion, sel) -> np.ndarray | None:
     """The capacitor voltages at the start of the region's solved steady period, at the
-    corners `sel` (zeros where the region has no result yet)."""
+    corners `sel`; None where the region has no result yet (the model then starts where it
+    always does)."""
     result = region.result
-    if result is not None and getattr(result, "steady_x", None) is not None:
-        return np.asarray(result.steady_x)[sel]
-    count = len([e for e in region.elements if e.kind == "C"])
-    return np.zeros((len(sel), count))
+    if result is None or getattr(result, "steady_x", None) is None:
+        return None
+    rows = getattr(result, "corner_index", None)
+    return result.steady_x[rows[sel] if rows is not None else sel]
 
 
 def simulate(region: PumpRegion, corners, diode_params, fast: bool = False,
@@ -256,11 +257,11 @@ def simulate(region: PumpRegion, corners, diode_params, fast: bool = False,
     load = region.leds[0]
     output = region.pumps[0].output_net if region.pumps else load.element.nodes[0]
     options = {"simulated_startup_periods": 3} if fast else {}
-    if start_x is not None or steady_only:
+    started = None if start_x is None else value_key(np.asarray(start_x, float))
+    if started is not None or steady_only:
         options.update(start_x=start_x, steady_only=steady_only)
     key, canon = _signature(network, corners, output, load,
-                            (fast, steady_only, value_key(np.asarray(start_x, float)))
-                            if start_x is not None or steady_only else fast)
+                            (fast, steady_only, started) if started is not None or steady_only else fast)
     if start_x is None and (not changes or set(changes) == {"sel"}):
         region.signature = key        # identical cells share it: fixes are worked out once
     known = SOLUTIONS.get(key)
