@@ -8,6 +8,8 @@ run from the repository root (after one untimed run, with Python's bytecode cach
 installed drc has it); each the median of 3 runs, wall-clock. Prints one table.
 Targets: drc within 2x ngspice's load at 100k elements, and drc's microseconds per element
 at 100k within 1.3x that at 10k. See bench/README.md for what "load" means here.
+The last two columns time drc's reading stage alone (bench/read_only.py: imports, design
+context, read, expand, flatten; fresh interpreter, median of 3) and its ratio to ngspice.
 """
 
 from __future__ import annotations
@@ -109,6 +111,23 @@ def time_drc(deck: Path) -> tuple[float | None, str]:
     return statistics.median(times), ""
 
 
+def time_reading(deck: Path) -> tuple[float | None, str]:
+    """drc's reading stage alone (bench/read_only.py: imports, design context, read, expand,
+    flatten), in a fresh interpreter each run, after one untimed run: what the issue
+    "Read SPICE-style netlists" built, before the analysis and rules there were."""
+    env = installed_env()
+    script = str(HERE / "read_only.py")
+    subprocess.run([sys.executable, script, str(deck)], cwd=ROOT, capture_output=True, env=env)
+    times = []
+    for _ in range(RUNS):
+        seconds, done = timed([sys.executable, script, str(deck)], ROOT, env)
+        if done.returncode != 0:
+            last = (done.stderr.strip().splitlines() or [f"exit status {done.returncode}"])[-1]
+            return None, f"drc's reading stage failed: {last}"
+        times.append(seconds)
+    return statistics.median(times), ""
+
+
 def startup_ngspice(exe: str) -> float:
     """ngspice's own start-up on a two-card deck, for the README's context."""
     tiny = OUT / "tiny.cir"
@@ -130,24 +149,27 @@ def main(argv: list[str]) -> int:
         if exe is not None and ng is not None and not reads_to_the_end(exe, deck):
             ng_note = "ngspice did not reach the deck's last card: its time is not a full load"
         drc, drc_note = time_drc(deck)
-        for note in (ng_note, drc_note):
+        reading, reading_note = time_reading(deck)
+        for note in (ng_note, drc_note, reading_note):
             if note:
                 print(f"N={count}: {note}")
-        rows.append((count, drc, ng))
+        rows.append((count, drc, ng, reading))
     if exe is not None:
         print(f"ngspice start-up (two-card deck): {startup_ngspice(exe):.3f} s")
 
     def cell(x: float | None, fmt: str) -> str:
         return "-" if x is None else format(x, fmt)
 
-    print(f"{'N':>8} {'drc s':>8} {'ngspice s':>10} {'ratio':>6} {'drc us/elem':>12}")
+    print(f"{'N':>8} {'drc s':>8} {'ngspice s':>10} {'ratio':>6} {'drc us/elem':>12} "
+          f"{'reading s':>10} {'ratio':>6}")
     per_element = []
-    for count, drc, ng in rows:
+    for count, drc, ng, reading in rows:
         ratio = drc / ng if drc is not None and ng else None
         us = drc / count * 1e6 if drc is not None else None
+        reading_ratio = reading / ng if reading is not None and ng else None
         per_element.append((count, us))
         print(f"{count:>8} {cell(drc, '.3f'):>8} {cell(ng, '.3f'):>10} {cell(ratio, '.2f'):>6} "
-              f"{cell(us, '.2f'):>12}")
+              f"{cell(us, '.2f'):>12} {cell(reading, '.3f'):>10} {cell(reading_ratio, '.2f'):>6}")
     small = next((us for c, us in per_element if 9_000 <= c <= 11_000), None)
     large = next((us for c, us in per_element if 90_000 <= c <= 110_000), None)
     if small is not None and large is not None:

@@ -17,6 +17,7 @@ from drc.analysis import Design, analyse, low_nominal_high
 from drc.api import SEVERITIES, Finding
 from drc.context import Context, load_context
 from drc.errors import InputError, InputErrors, Location
+from drc.design import FlatDesign
 from drc.expand import Limits, expand
 from drc.registry import LoadedRule, load_rules
 from drc.report.jsonreport import (BRANCH_KEYS, PUMP_KEYS, FinalEntries, fingerprint,
@@ -71,14 +72,19 @@ class FileResult:
     anchors: list[set] = field(default_factory=list)   # per finding: (path, line) cards
 
 
-def check_file(path: str, config: str | None, rules: list[LoadedRule]) -> FileResult:
-    """Everything about one netlist; InputError(s) when it cannot be read."""
-    rule_ids = [r.id for r in rules]
+def read_design(path: str, config: str | None) -> tuple[Context, FlatDesign]:
+    """The design context for `path` and the netlist read, expanded and flattened under
+    the context's limits: the part of a check before its analysis."""
     context = load_context(Path(path), Path(config) if config else None, rule_ids=None)
     limits = Limits(max_elements=context.limits.max_elements,
                     max_file_bytes=context.limits.max_file_bytes,
                     include_folders=tuple(context.limits.include_folders))
-    flat = expand(path, limits)
+    return context, expand(path, limits)
+
+
+def check_file(path: str, config: str | None, rules: list[LoadedRule]) -> FileResult:
+    """Everything about one netlist; InputError(s) when it cannot be read."""
+    context, flat = read_design(path, config)
     design = analyse(flat, context)
     findings, ran = run_rules(design, rules, context)
     cautions = _cautions(design, findings)
