@@ -78,6 +78,52 @@ class ElementCard(NamedTuple):
         return self.name.location
 
 
+class LineCard(NamedTuple):
+    """A plain one-line element card as the reader's fast path keeps it: the texts of its
+    words, one space apart, and where the first one stands. It stands for the ElementCard
+    its words make (`card`); the flattener reads the texts directly, so most cards never
+    make a Word for each field."""
+
+    texts: tuple[str, ...]         # the name, the nodes, the other fields
+    path: str
+    line: int
+    column: int                    # of the name
+    count: int                     # how many of texts[1:] are nodes
+
+    def words(self) -> list[Word]:
+        out = []
+        column = self.column
+        for text in self.texts:
+            out.append(Word(text, self.path, self.line, column))
+            column += len(text) + 1
+        return out
+
+    @property
+    def card(self) -> ElementCard:
+        words = self.words()
+        return ElementCard(words[0], tuple(words[1:self.count + 1]), tuple(words[self.count + 1:]))
+
+    @property
+    def name(self) -> Word:
+        return Word(self.texts[0], self.path, self.line, self.column)
+
+    @property
+    def nodes(self) -> tuple[Word, ...]:
+        return self.card.nodes
+
+    @property
+    def fields(self) -> tuple[Field, ...]:
+        return self.card.fields
+
+    @property
+    def letter(self) -> str:
+        return self.texts[0][0].upper()
+
+    @property
+    def location(self) -> Location:
+        return Location(self.path, self.line, self.column)
+
+
 class DotCard(NamedTuple):
     keyword: str                   # lower-case, without the dot: "model", "subckt", ...
     head: Word                     # the keyword as typed
@@ -134,7 +180,12 @@ def element_card(name: Word, fields: tuple[Field, ...]) -> ElementCard:
 
 
 def same_card(a, b) -> bool:
-    """Equality that also compares types (named tuples alone compare as plain tuples)."""
+    """Equality that also compares types (named tuples alone compare as plain tuples). A
+    LineCard compares as the ElementCard it stands for."""
+    if type(a) is LineCard:
+        a = a.card
+    if type(b) is LineCard:
+        b = b.card
     if type(a) is not type(b):
         return False
     if isinstance(a, tuple):

@@ -13,7 +13,7 @@ import os
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from drc.cards import Assign, Call, DotCard, ElementCard, Expr, Str, Word
+from drc.cards import Assign, Call, DotCard, ElementCard, Expr, LineCard, Str, Word
 from drc.design import GROUND, Element, FlatDesign, Model, Source, ValueNote, Waveform
 from drc.errors import InputError, Location
 from drc.reader import read_text
@@ -46,7 +46,7 @@ class Subckt:
 @dataclass
 class Scope:
     parent: "Scope | None" = None
-    elements: list[ElementCard] = field(default_factory=list)
+    elements: list[ElementCard | LineCard] = field(default_factory=list)
     models: dict[str, DotCard] = field(default_factory=dict)
     params: list[Assign] = field(default_factory=list)
     subckts: dict[str, Subckt] = field(default_factory=dict)
@@ -129,7 +129,7 @@ class _Expander:
                 if kind is DotCard and card.keyword == "endl":
                     skipping_section = None
                 continue
-            if kind is ElementCard:
+            if kind is LineCard or kind is ElementCard:
                 scope.elements.append(card)
                 continue
             if kind is not DotCard:
@@ -466,8 +466,9 @@ class _Flattener:
         self.nets: set[str] = set()
         self.entered: dict[int, tuple[str, Params]] = {}   # id(scope) -> (prefix, params)
 
-    def net(self, word: Word, prefix: str, ports: dict[str, str]) -> str:
-        key = word.text.lower()
+    def net(self, text: str, prefix: str, ports: dict[str, str]) -> str:
+        """The net key of a node as typed in a scope instance."""
+        key = text.lower()
         if key in GROUND_NAMES:
             return GROUND
         if key in ports:
@@ -531,22 +532,44 @@ class _Flattener:
         net_of: dict[str, str] = {}         # node as typed -> net key, in this scope instance
         model_of: dict[str, str] = {}       # model name as typed -> model key, likewise
         for card in scope.elements:
-            head = card.name
-            letter = head.text[0].upper()
-            name = shown_prefix + head.text
             nodes = []
-            for w in card.nodes:
-                node_text = w.text
-                key = net_of.get(node_text)
-                if key is None:
-                    key = net_of[node_text] = net(w, prefix, ports)
-                nodes.append(key)
-            nodes = tuple(nodes)
-            fields = card.fields
-            if letter == "X":
-                self._instance(card, scope, prefix, shown_prefix, ports, params, instances, nodes)
-                continue
-            location = new(Location, head[1:])           # a Word is (text, path, line, column)
+            if type(card) is LineCard:
+                # the reader's plain card: its texts, one space apart (no X line is one)
+                texts, path, line, column, count = card
+                head_text = texts[0]
+                location = new(Location, (path, line, column))
+                column += len(head_text) + 1
+                for node_text in texts[1:count + 1]:
+                    key = net_of.get(node_text)
+                    if key is None:
+                        key = net_of[node_text] = net(node_text, prefix, ports)
+                    nodes.append(key)
+                    column += len(node_text) + 1
+                fields = []
+                for text in texts[count + 1:]:
+                    fields.append(new(Word, (text, path, line, column)))
+                    column += len(text) + 1
+                fields = tuple(fields)
+                letter = head_text[0].upper()
+                name = shown_prefix + head_text
+                nodes = tuple(nodes)
+            else:
+                head = card.name
+                head_text = head.text
+                letter = head_text[0].upper()
+                name = shown_prefix + head_text
+                for w in card.nodes:
+                    node_text = w.text
+                    key = net_of.get(node_text)
+                    if key is None:
+                        key = net_of[node_text] = net(node_text, prefix, ports)
+                    nodes.append(key)
+                nodes = tuple(nodes)
+                fields = card.fields
+                if letter == "X":
+                    self._instance(card, scope, prefix, shown_prefix, ports, params, instances, nodes)
+                    continue
+                location = new(Location, head[1:])       # a Word is (text, path, line, column)
             value = value_text = model = source = None
             control = ()
             params_of = None
@@ -560,13 +583,13 @@ class _Flattener:
                 value_field = positional[0] if positional else next(
                     (a.value for a in assigns if a.key.text.lower() in (letter.lower(), "value")), None)
                 if value_field is None:
-                    raise InputError(location, f"{head.text} has no value")
+                    raise InputError(location, f"{head_text} has no value")
                 value = ex.element_value(value_field, params, name, letter)
                 value_text = value_field.text if type(value_field) in (Word, Expr) else None
                 params_of = self._assigns(assigns, params) if assigns else {}
             elif letter == "D":
                 if not positional or type(positional[0]) is not Word:
-                    raise InputError(location, f"{head.text} names no diode model")
+                    raise InputError(location, f"{head_text} names no diode model")
                 typed = positional[0].text
                 model = model_of.get(typed)
                 if model is None:
@@ -577,7 +600,7 @@ class _Flattener:
                 else:
                     value = params_of.get("area")
                 if value is not None and not value > 0:
-                    raise InputError(location, f"{head.text}'s area must be positive, got {value:g}")
+                    raise InputError(location, f"{head_text}'s area must be positive, got {value:g}")
             elif letter in "VI":
                 source = self._source(card, positional, params, name)
                 value = source.dc
@@ -592,14 +615,14 @@ class _Flattener:
                     value = ex._number(positional[0], params, f"{name}'s gain")
             elif letter in "FH":
                 if not positional or type(positional[0]) is not Word:
-                    raise InputError(location, f"{head.text} names no controlling source")
+                    raise InputError(location, f"{head_text} names no controlling source")
                 control = (prefix + positional[0].text.lower(),)
                 if len(positional) > 1:
                     value = ex._number(positional[1], params, f"{name}'s gain")
             elif letter == "K":
                 words = [f for f in positional if type(f) is Word]
                 if len(words) < 3:
-                    raise InputError(location, f"{head.text} wants two inductors and a coupling")
+                    raise InputError(location, f"{head_text} wants two inductors and a coupling")
                 control = (prefix + words[0].text.lower(), prefix + words[1].text.lower())
                 value = ex._number(positional[2], params, f"{name}'s coupling")
             append(Element(name, name.lower(), letter, nodes, location, instances, value,

@@ -19,6 +19,7 @@ from functools import lru_cache
 from importlib import resources
 
 from drc.cards import (NODE_COUNTS, Assign, Call, Card, ControlCard, DotCard, ElementCard, Expr,
+                       LineCard,
                        Str, Word, element_card)
 from drc.errors import InputError, Location
 
@@ -380,16 +381,21 @@ def read_text(text: str, path: str, has_title: bool = True) -> ParsedFile:
                 break
         if last == i and first in letters and clear(stripped):
             # the fast path, inlined (plain_card): a one-line card of words only
+            count = counts.get(first)
             if "\t" in stripped or "\f" in stripped or "  " in stripped:
                 words = _words(line, len(line) - len(stripped), path, i + 1)
             else:
+                texts = tuple(stripped.split())
+                if count is not None and len(texts) > count:
+                    append(new(LineCard, (texts, path, i + 1, len(line) - len(stripped) + 1, count)))
+                    i = j
+                    continue
                 words = []
                 column = len(line) - len(stripped) + 1
                 line_number = i + 1
-                for word in stripped.split():
+                for word in texts:
                     words.append(new(Word, (word, path, line_number, column)))
                     column += len(word) + 1
-            count = counts.get(first)
             if count is None or len(words) <= count:
                 append(element_card(words[0], tuple(words[1:])))
             else:
