@@ -226,40 +226,61 @@ def words_card(lines: list[str], first: int, last: int, path: str) -> ElementCar
 
     Each line is split on white space as plain_card splits one (a '+' and the line end
     separate words too). The call's '(' must follow its name directly and its ')' must end
-    the card: any other use of parentheses goes to simple_card or continued_card."""
+    the card: any other use of parentheses goes to simple_card or continued_card. The
+    words are gathered as (text, line, column) first and each Word is made once, for the
+    field it ends up in."""
     line = lines[first]
     stripped = line.lstrip(" \t\f")
     if not stripped or stripped[0] not in _ASCII_LETTERS or not _CALL_CLEAR(stripped):
         return None
-    words = _words(line, len(line) - len(stripped), path, first + 1)
-    for k, line, stripped in _continuations(lines, first, last):
-        if line is None or not _CALL_CLEAR(stripped):
-            return None
-        start = len(line) - len(stripped) + 1          # after the '+'
-        words += [_new(Word, (m.group(), path, k + 1, m.start() + 1))
-                  for m in _TOKEN.finditer(line, start)]
-    opening = [n for n, w in enumerate(words) if "(" in w.text]
+    spots = _spots(line, stripped, first + 1)
+    if last > first:
+        for k, line, stripped in _continuations(lines, first, last):
+            if line is None or not _CALL_CLEAR(stripped):
+                return None
+            start = len(line) - len(stripped) + 1          # after the '+'
+            spots += [(m.group(), k + 1, m.start() + 1) for m in _TOKEN.finditer(line, start)]
+    texts = [spot[0] for spot in spots]
+    opening = [n for n, text in enumerate(texts) if "(" in text]
+    new = _new
     if not opening:
-        if any(")" in w.text for w in words):
+        if any(")" in text for text in texts):
             return None
-        return _plain_element(words)
+        return _plain_element([new(Word, (text, path, row, column)) for text, row, column in spots])
     n = opening[0]
-    call = words[n]
-    at = call.text.find("(")
-    closing = [w for w in words if ")" in w.text]
-    if (len(opening) != 1 or n == 0 or at == 0 or call.text.count("(") != 1
-            or len(closing) != 1 or closing[0] is not words[-1]
-            or words[-1].text.find(")") != len(words[-1].text) - 1):
+    call_text, call_row, call_column = spots[n]
+    at = call_text.find("(")
+    end = texts[-1]
+    if (len(opening) != 1 or n == 0 or at == 0 or call_text.count("(") != 1
+            or sum(")" in text for text in texts) != 1 or ")" not in end
+            or end.find(")") != len(end) - 1):
         return None
-    name = _new(Word, (call.text[:at], path, call.line, call.column))
+    name = new(Word, (call_text[:at], path, call_row, call_column))
     # the call's arguments: what follows '(' in its word, the words after it, and what
     # stands before ')' in the last word
-    pieces = [_new(Word, (call.text[at + 1:], path, call.line, call.column + at + 1)),
-              *words[n + 1:]]
-    end = pieces[-1]
-    pieces[-1] = _new(Word, (end.text[:-1], path, end.line, end.column))
-    args = tuple(w for w in pieces if w.text)
-    return element_card(words[0], (*words[1:n], Call(name, args)))
+    pieces = [(call_text[at + 1:], call_row, call_column + at + 1), *spots[n + 1:]]
+    end_text, end_row, end_column = pieces[-1]
+    pieces[-1] = (end_text[:-1], end_row, end_column)
+    args = tuple([new(Word, (text, path, row, column)) for text, row, column in pieces if text])
+    words = [new(Word, (text, path, row, column)) for text, row, column in spots[:n]]
+    call = new(Call, (name, args))
+    count = NODE_COUNTS.get(words[0].text[0].upper())
+    if count is None or n - 1 < count:       # X lines, unknown letters, the call a node
+        return element_card(words[0], (*words[1:], call))
+    return new(ElementCard, (words[0], tuple(words[1:count + 1]), (*words[count + 1:], call)))
+
+
+def _spots(line: str, stripped: str, line_number: int) -> list[tuple[str, int, int]]:
+    """(text, line, column) of each word of a line, split as _words splits it."""
+    if "\t" in line or "\f" in line or "  " in stripped:
+        return [(m.group(), line_number, m.start() + 1)
+                for m in _TOKEN.finditer(line, len(line) - len(stripped))]
+    out = []                   # one space between words: columns follow from the lengths
+    column = len(line) - len(stripped) + 1
+    for text in stripped.split():
+        out.append((text, line_number, column))
+        column += len(text) + 1
+    return out
 
 
 def _simple_tokens_card(tokens: list[Word]) -> Card | None:
