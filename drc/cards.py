@@ -141,7 +141,7 @@ class ControlCard(NamedTuple):
     text: str
 
 
-Card = Union[ElementCard, DotCard, ControlCard]
+Card = Union[ElementCard, LineCard, DotCard, ControlCard]
 
 # Node counts of the element letters drc reads (SPICE3 and ngspice conventions).
 # X takes as many nodes as stand before its subcircuit name.

@@ -3,7 +3,9 @@
 The grammar (grammar/netlist.lark) is the definition of the language. Most cards of an
 exported schematic are plain one-line cards (`R12 a b 4.7k`); for those a fast path splits
 the line on white space and gives exactly the result the grammar gives (a differential test,
-tests/test_reader_fastpath.py, holds it to that); `words_card` does the same for such a card
+tests/test_reader_fastpath.py, holds it to that). read_text keeps such a card, when its
+words stand one space apart, as a LineCard (its texts and where the first starts), which
+stands for the ElementCard its words make; `words_card` gives the card for one
 spread over `+` continuation lines, and for one that ends in a call such as PULSE(...).
 Two more fast paths read cards of words,
 calls and key=value assignments, on one line (`simple_card`) or over `+` continuation lines
