@@ -327,3 +327,12 @@ def test_continued_cards_take_the_fast_path(text):
 def test_continued_cards_the_fast_path_leaves_or_refuses(text):
     # refused by the fast path, or an error: either way the grammar's outcome
     assert_same("title\n" + text + "\n")
+
+
+def test_the_plain_character_class_is_the_plain_set():
+    # read_text searches a line with _NOT_PLAIN_CHAR, the character class made of the set
+    # _NOT_PLAIN that defines what a plain card may not hold: the two agree on every code
+    # point (Unicode's whole range, U+0000 to U+10FFFF)
+    from drc.reader import _NOT_PLAIN, _NOT_PLAIN_CHAR
+    assert all((_NOT_PLAIN_CHAR.fullmatch(c) is not None) == (c in _NOT_PLAIN)
+               for c in map(chr, range(0x110000)))
