@@ -5,7 +5,6 @@ from __future__ import annotations
 
 import difflib
 import math
-import os
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -16,8 +15,8 @@ from drc.advice import EYE_CAUTION, LITHIUM_CAUTION
 from drc.analysis import Design, analyse, low_nominal_high
 from drc.api import SEVERITIES, Finding
 from drc.context import Context, load_context
-from drc.errors import InputError, InputErrors, Location
 from drc.design import FlatDesign
+from drc.errors import InputError, InputErrors, Location
 from drc.expand import Limits, expand
 from drc.registry import LoadedRule, load_rules
 from drc.report.jsonreport import (BRANCH_KEYS, PUMP_KEYS, FinalEntries, fingerprint,
@@ -230,7 +229,6 @@ def _pump_json(p, design: Design, spreads: list | None = None) -> dict:
         entry = _pump_json(p, design, own)
         _fill_spreads(own, design.corners.nominal)
         return entry
-    n = design.corners.nominal
     entry = {"id": p.id, "topology": p.topology, "stages": p.stages,
              "elements": [e.name for e in p.elements], "output_net": p.output_net}
     r = p.result

@@ -21,8 +21,7 @@ from functools import lru_cache
 from importlib import resources
 
 from drc.cards import (NODE_COUNTS, Assign, Call, Card, ControlCard, DotCard, ElementCard, Expr,
-                       LineCard,
-                       Str, Word, element_card)
+                       LineCard, Str, Word, element_card)
 from drc.errors import InputError, Location
 
 
