@@ -391,7 +391,7 @@ def _count(scope: Scope, memo: dict, chain: list, depth: int = 64) -> int:
         return len(scope.elements)      # no .subckt in reach: every card, X lines too, is one
     total = 0
     for card in scope.elements:
-        if card.name.text[0] not in "Xx":
+        if type(card) is LineCard or card.name.text[0] not in "Xx":     # (no X line is a LineCard)
             total += 1
             continue
         sub = scope.find_subckt(card.fields[0].text.lower())

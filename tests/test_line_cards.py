@@ -16,7 +16,7 @@ import pytest
 from hypothesis import HealthCheck, given, settings, strategies as st
 
 import drc.expand as expand_mod
-from drc.cards import LineCard
+from drc.cards import ElementCard, LineCard
 from drc.errors import InputError, InputErrors
 from drc.reader import read_text
 
@@ -52,6 +52,13 @@ def test_the_reader_keeps_plain_cards_as_line_cards():
     # otherwise this file tests nothing
     cards = read_text("t\nR1 a b 1k\nD1 b 0 LED\n", "t.cir").cards
     assert [type(c) for c in cards] == [LineCard, LineCard]
+
+
+def test_no_subcircuit_instance_is_a_line_card():
+    # the flattener's LineCard path has no X case: an X line (its nodes are the words
+    # before its subcircuit's name) must come out of the reader as an ElementCard
+    cards = read_text("t\nX1 a b cell\nx2 a b c cell\n", "t.cir").cards
+    assert [type(c) for c in cards] == [ElementCard, ElementCard]
 
 
 @pytest.mark.parametrize("path", CORPUS, ids=lambda p: str(p.relative_to(ROOT)))
