@@ -77,15 +77,34 @@ def reads_to_the_end(exe: str, deck: Path) -> bool:
     return f"line {len(text)}" in (done.stdout + done.stderr).lower()
 
 
-def time_ngspice(exe: str, deck: Path) -> tuple[float | None, str]:
+def median_of_runs(cmd: list[str], cwd: Path, env: dict | None, problem, what: str
+                   ) -> tuple[float | None, str]:
+    """The median wall-clock time of RUNS runs of cmd, or (None, why) at the first run that
+    `problem(done)` (a str, or None) finds wrong."""
     times = []
     for _ in range(RUNS):
-        seconds, done = timed([exe, "-b", str(deck)], deck.parent)
-        problem = ngspice_loaded(done)
-        if problem:
-            return None, f"ngspice failed: {problem}"
+        seconds, done = timed(cmd, cwd, env)
+        why = problem(done)
+        if why:
+            return None, f"{what} failed: {why}"
         times.append(seconds)
     return statistics.median(times), ""
+
+
+def _last_error(done: subprocess.CompletedProcess) -> str:
+    return (done.stderr.strip().splitlines() or [f"exit status {done.returncode}"])[-1]
+
+
+def time_ngspice(exe: str, deck: Path) -> tuple[float | None, str]:
+    return median_of_runs([exe, "-b", str(deck)], deck.parent, None, ngspice_loaded, "ngspice")
+
+
+def _drc_died(done: subprocess.CompletedProcess) -> str | None:
+    # 0: clean, 1: findings at or above --fail-on; both are a finished check,
+    # unless Python itself died (an import error also exits 1)
+    if done.returncode not in (0, 1) or "Traceback" in done.stderr:
+        return _last_error(done)
+    return None
 
 
 def time_drc(deck: Path) -> tuple[float | None, str]:
@@ -99,17 +118,8 @@ def time_drc(deck: Path) -> tuple[float | None, str]:
             raise ValueError("no drc-report/1 schema key")
     except (OSError, ValueError) as why:
         return None, f"drc failed: its report is not a drc report ({why})"
-    times = []
-    for _ in range(RUNS):
-        seconds, done = timed([sys.executable, "-m", "drc", "check", str(deck),
-                               "--format", "json", "--output", "/dev/null"], ROOT, env)
-        # 0: clean, 1: findings at or above --fail-on; both are a finished check,
-        # unless Python itself died (an import error also exits 1)
-        if done.returncode not in (0, 1) or "Traceback" in done.stderr:
-            last = (done.stderr.strip().splitlines() or [f"exit status {done.returncode}"])[-1]
-            return None, f"drc failed: {last}"
-        times.append(seconds)
-    return statistics.median(times), ""
+    return median_of_runs([sys.executable, "-m", "drc", "check", str(deck), "--format", "json",
+                           "--output", "/dev/null"], ROOT, env, _drc_died, "drc")
 
 
 def time_reading(deck: Path) -> tuple[float | None, str]:
@@ -117,16 +127,11 @@ def time_reading(deck: Path) -> tuple[float | None, str]:
     flatten), in a fresh interpreter each run, after one untimed run: what the issue
     "Read SPICE-style netlists" built, before the analysis and rules there were."""
     env = installed_env()
-    script = str(HERE / "read_only.py")
-    subprocess.run([sys.executable, script, str(deck)], cwd=ROOT, capture_output=True, env=env)
-    times = []
-    for _ in range(RUNS):
-        seconds, done = timed([sys.executable, script, str(deck)], ROOT, env)
-        if done.returncode != 0:
-            last = (done.stderr.strip().splitlines() or [f"exit status {done.returncode}"])[-1]
-            return None, f"drc's reading stage failed: {last}"
-        times.append(seconds)
-    return statistics.median(times), ""
+    cmd = [sys.executable, str(HERE / "read_only.py"), str(deck)]
+    subprocess.run(cmd, cwd=ROOT, capture_output=True, env=env)
+    return median_of_runs(cmd, ROOT, env,
+                          lambda done: _last_error(done) if done.returncode != 0 else None,
+                          "drc's reading stage")
 
 
 def startup_ngspice(exe: str) -> float:

@@ -78,6 +78,9 @@ class ElementCard(NamedTuple):
         return self.name.location
 
 
+_new = tuple.__new__          # a named tuple made without its Python-level __new__
+
+
 class LineCard(NamedTuple):
     """A plain one-line element card as the reader's fast path keeps it: the texts of its
     words, one space apart, and where the first one stands. It stands for the ElementCard
@@ -90,18 +93,19 @@ class LineCard(NamedTuple):
     column: int                    # of the name
     count: int                     # how many of texts[1:] are nodes
 
-    def words(self) -> list[Word]:
+    def words(self) -> tuple[Word, ...]:
+        """A Word for each text, where it was typed."""
+        texts, path, line, column, _ = self
         out = []
-        column = self.column
-        for text in self.texts:
-            out.append(Word(text, self.path, self.line, column))
+        for text in texts:
+            out.append(_new(Word, (text, path, line, column)))
             column += len(text) + 1
-        return out
+        return tuple(out)
 
     @property
     def card(self) -> ElementCard:
         words = self.words()
-        return ElementCard(words[0], tuple(words[1:self.count + 1]), tuple(words[self.count + 1:]))
+        return ElementCard(words[0], words[1:self.count + 1], words[self.count + 1:])
 
     @property
     def name(self) -> Word:

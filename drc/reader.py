@@ -134,17 +134,23 @@ def _is_end(stripped: str) -> bool:
 _new = tuple.__new__          # a named tuple made without its Python-level __new__
 
 
-def _words(line: str, start: int, path: str, line_number: int) -> list[Word]:
-    """The words of a line from `start` on, split at spaces, tabs and form feeds."""
+def _spots(line: str, start: int, line_number: int) -> list[tuple[str, int, int]]:
+    """(text, line, column) of each word of a line from `start` (its first word) on, split
+    at spaces, tabs and form feeds."""
     if "\t" in line or "\f" in line or line.find("  ", start) >= 0:
-        return [_new(Word, (m.group(), path, line_number, m.start() + 1))
-                for m in _TOKEN.finditer(line, start)]
+        return [(m.group(), line_number, m.start() + 1) for m in _TOKEN.finditer(line, start)]
     out = []                   # one space between words: columns follow from the lengths
     column = start + 1
     for text in line.split():
-        out.append(_new(Word, (text, path, line_number, column)))
+        out.append((text, line_number, column))
         column += len(text) + 1
     return out
+
+
+def _words(line: str, start: int, path: str, line_number: int) -> list[Word]:
+    """The words of a line from `start` (its first word) on, as _spots splits them."""
+    return [_new(Word, (text, path, row, column))
+            for text, row, column in _spots(line, start, line_number)]
 
 
 def plain_card(line: str, path: str, line_number: int) -> ElementCard | None:
@@ -234,7 +240,7 @@ def words_card(lines: list[str], first: int, last: int, path: str) -> ElementCar
     stripped = line.lstrip(" \t\f")
     if not stripped or stripped[0] not in _ASCII_LETTERS or not _CALL_CLEAR(stripped):
         return None
-    spots = _spots(line, stripped, first + 1)
+    spots = _spots(line, len(line) - len(stripped), first + 1)
     if last > first:
         for k, line, stripped in _continuations(lines, first, last):
             if line is None or not _CALL_CLEAR(stripped):
@@ -264,24 +270,7 @@ def words_card(lines: list[str], first: int, last: int, path: str) -> ElementCar
     pieces[-1] = (end_text[:-1], end_row, end_column)
     args = tuple([new(Word, (text, path, row, column)) for text, row, column in pieces if text])
     words = [new(Word, (text, path, row, column)) for text, row, column in spots[:n]]
-    call = new(Call, (name, args))
-    count = NODE_COUNTS.get(words[0].text[0].upper())
-    if count is None or n - 1 < count:       # X lines, unknown letters, the call a node
-        return element_card(words[0], (*words[1:], call))
-    return new(ElementCard, (words[0], tuple(words[1:count + 1]), (*words[count + 1:], call)))
-
-
-def _spots(line: str, stripped: str, line_number: int) -> list[tuple[str, int, int]]:
-    """(text, line, column) of each word of a line, split as _words splits it."""
-    if "\t" in line or "\f" in line or "  " in stripped:
-        return [(m.group(), line_number, m.start() + 1)
-                for m in _TOKEN.finditer(line, len(line) - len(stripped))]
-    out = []                   # one space between words: columns follow from the lengths
-    column = len(line) - len(stripped) + 1
-    for text in stripped.split():
-        out.append((text, line_number, column))
-        column += len(text) + 1
-    return out
+    return element_card(words[0], (*words[1:], Call(name, args)))
 
 
 def _simple_tokens_card(tokens: list[Word]) -> Card | None:
@@ -405,27 +394,17 @@ def read_text(text: str, path: str, has_title: bool = True) -> ParsedFile:
                 break
         if last == i and first in letters and unclear(stripped) is None:
             # the fast path, inlined (plain_card): a one-line card of words only
-            count = counts.get(first)
-            if "\t" in stripped or "\f" in stripped or "  " in stripped:
-                words = _words(line, len(line) - len(stripped), path, i + 1)
-            else:
+            # (its words one space apart and its nodes all there: a LineCard)
+            start = len(line) - len(stripped)
+            if "\t" not in stripped and "\f" not in stripped and "  " not in stripped:
                 texts = tuple(stripped.split())
+                count = counts.get(first)
                 if count is not None and len(texts) > count:
-                    append(new(LineCard, (texts, path, i + 1, len(line) - len(stripped) + 1, count)))
-                    i = j
+                    append(new(LineCard, (texts, path, i + 1, start + 1, count)))
+                    i = j        # the blank and comment lines after it are skipped too
                     continue
-                words = []
-                column = len(line) - len(stripped) + 1
-                line_number = i + 1
-                for word in texts:
-                    words.append(new(Word, (word, path, line_number, column)))
-                    column += len(word) + 1
-            if count is None or len(words) <= count:
-                append(element_card(words[0], tuple(words[1:])))
-            else:
-                words = tuple(words)
-                append(new(ElementCard, (words[0], words[1:count + 1], words[count + 1:])))
-            i = j                # the blank and comment lines after it are skipped too
+            append(_plain_element(_words(line, start, path, i + 1)))
+            i = j
             continue
         if first == ".":
             if _is_end(stripped):
