@@ -231,6 +231,25 @@ def test_rc_charging_law_in_the_first_phase():
                                SUPPLY * (1 - np.exp(-(0.5 / f) / (R * C))), rtol=0.01)
 
 
+
+def test_rc_charging_law_on_a_phase_a_thousand_time_constants_long():
+    # the same pin and capacitor toggling at 5 Hz: tau = 100 us, each phase 100 ms = 1000 tau
+    f, R, C = 5.0, 100.0, 1e-6
+    tau = R * C
+    network = PumpNetwork(nodes=["a"], pins=[PinDrive("P", "a", SUPPLY, R, f)],
+                          capacitors=[("a", "0", C)])
+    model = simulate_periodic(network, TEMPERATURE_K, "a", None, 0.0)
+    t = model.startup_time_s
+    early = t <= 5 * tau
+    # the transient is stepped through, not crossed in one step
+    assert early.sum() >= 10
+    # capacitor charging law v(t) = V (1 - exp(-t/RC)) at those step ends: within 1% of V
+    expected = np.asarray(SUPPLY)[..., None] * (1 - np.exp(-t[early] / tau))
+    np.testing.assert_allclose(model.startup_V["a"][:, early], np.broadcast_to(
+        expected, model.startup_V["a"][:, early].shape), atol=0.01 * np.max(SUPPLY))
+    # Ohm's law at the edge: V / R into the empty capacitor, within 3%
+    np.testing.assert_allclose(model.startup_surge_A["P"], np.asarray(SUPPLY) / R, rtol=0.03)
+
 def test_two_pin_pump_levels_are_the_trade_figures():
     # our scenario: no reservoir, 40 ohm pins, 100 ohm series resistor, 500 Hz (1 ms phases)
     network = two_pin_doubler(reservoir_F=0.0, series_ohm=100.0, frequency_Hz=500.0)

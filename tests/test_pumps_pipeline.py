@@ -165,6 +165,10 @@ CASES = [
     (PUMPS / "doubler_pin.cir"),
     (PUMPS / "dickson2.cir"),
     (PUMPS / "dickson3.cir"),
+    # pins toggling at 5 Hz: phases of 100 ms, some 350 times the edge's time constant, so
+    # the surge, the output's peak and the LED's charge all sit in the first few percent of
+    # each phase (the model's step grid once missed them: surge 25 %, peak 15 % short)
+    (PUMPS / "doubler_slow_flash.cir"),
 ]
 
 
@@ -285,7 +289,7 @@ def _report(path: Path) -> dict:
 @pytest.fixture(scope="module")
 def reports():
     names = ["doubler_rail", "doubler_rail_res", "doubler_pin", "dickson2", "dickson3",
-             "dickson4", "bootstrap"]
+             "dickson4", "bootstrap", "doubler_slow_flash"]
     with ThreadPoolExecutor(max_workers=4) as pool:
         return dict(zip(names, pool.map(lambda n: _report(PUMPS / f"{n}.cir"), names)))
 
@@ -297,6 +301,7 @@ TOPOLOGIES = [
     ("doubler_rail", "doubler", 1, ["DCH", "CP", "DTR"], "out"),
     ("doubler_rail_res", "doubler", 1, ["DCH", "CP", "DTR", "CR"], "out"),
     ("doubler_pin", "doubler", 1, ["DCH", "CP", "DTR", "CR"], "out"),
+    ("doubler_slow_flash", "doubler", 1, ["DCH", "CP", "DTR", "CR"], "out"),
     ("dickson2", "dickson", 2, ["D1", "C1", "D2", "C2", "D3", "CR"], "out"),
     ("dickson3", "dickson", 3, ["D1", "C1", "D2", "C2", "D3", "C3", "D4", "CR"], "out"),
     ("dickson4", "dickson", 4, ["D1", "C1", "D2", "C2", "D3", "C3", "D4", "C4", "D5", "CR"], "out"),
