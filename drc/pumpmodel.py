@@ -619,7 +619,6 @@ def simulate_periodic(network: PumpNetwork, temperature_K, output_node: str, loa
     C, T, K = sys.corners, sys.period_s, sys.steps
     load = sys.diode_names.index(load_diode) if load_diode is not None else None
     out = sys.index.get(output_node, -1)
-    h = sys.step_h
     visible = np.broadcast_to(np.asarray(visible_current_A, dtype=float), (C,))
     if load is None:
         visible = np.full(C, np.inf)

@@ -231,7 +231,6 @@ def test_rc_charging_law_in_the_first_phase():
                                SUPPLY * (1 - np.exp(-(0.5 / f) / (R * C))), rtol=0.01)
 
 
-
 def test_rc_charging_law_on_a_phase_a_thousand_time_constants_long():
     # the same pin and capacitor toggling at 5 Hz: tau = 100 us, each phase 100 ms = 1000 tau
     f, R, C = 5.0, 100.0, 1e-6
@@ -249,6 +248,7 @@ def test_rc_charging_law_on_a_phase_a_thousand_time_constants_long():
         expected, model.startup_V["a"][:, early].shape), atol=0.01 * np.max(SUPPLY))
     # Ohm's law at the edge: V / R into the empty capacitor, within 3%
     np.testing.assert_allclose(model.startup_surge_A["P"], np.asarray(SUPPLY) / R, rtol=0.03)
+
 
 def test_two_pin_pump_levels_are_the_trade_figures():
     # our scenario: no reservoir, 40 ohm pins, 100 ohm series resistor, 500 Hz (1 ms phases)
