@@ -23,6 +23,7 @@ from drc.diode import ZERO_CELSIUS_K, DiodeParams, voltage_at_current
 from drc.errors import InputError, InputErrors, Location
 from drc.memo import Canon, Memo, value_key
 from drc.solve import led_model_from_forward_voltages, solve_string
+from drc.units import format_si
 
 STRING_SOLUTIONS = Memo()
 NETWORK_SOLUTIONS = Memo()
@@ -892,7 +893,8 @@ def _trace_branches(flat, terminals, supplies, pins, leds, corners, notes) -> li
                             nets.add(n)
                             todo.append(n)
                 elif problem is None:
-                    what = "a black-box part" if e.kind == "X" else f"a {e.kind} element"
+                    what = ("a black-box part" if e.kind == "X" else
+                            f"{'an' if e.kind in 'AEFHILMNORSX' else 'a'} {e.kind} element")
                     problem = f"{start.name}'s circuit reaches {what}, {e.name}, which drc cannot solve"
         return nets, list(elements.values()), problem
 
@@ -1104,6 +1106,78 @@ class _NetworkRegion:
     elements: list[Element]
 
 
+def _dc_reach(b: Branch, stops) -> list[Element]:
+    """The network's elements joined to its LEDs through nets that are not rails, pins or
+    ground (`stops`): those the LEDs' steady currents can flow through, a capacitor being
+    open. What lies beyond a capacitor alone changes no DC solution of the LEDs."""
+    by_net: dict[str, list[Element]] = {}
+    for x in b.network.elements:
+        for n in x.nodes:
+            by_net.setdefault(n, []).append(x)
+    reached = {led.element.key: led.element for led in b.leds}
+    todo = [n for led in b.leds for n in led.element.nodes if n not in stops]
+    seen = set(todo)
+    while todo:
+        for x in by_net.get(todo.pop(), ()):
+            if x.key not in reached:
+                reached[x.key] = x
+                for n in x.nodes:
+                    if n not in stops and n not in seen:
+                        seen.add(n)
+                        todo.append(n)
+    return list(reached.values())
+
+
+SETTLED_SHARE = 0.05     # a capacitor settles within a phase if its time constant is this
+                         # share of the phase at most (the LED's charge is then some 5 % off)
+
+
+def _slow_capacitor(b: Branch, rail_nets, pin_nets, region_pins) -> str | None:
+    """Why the phases of a toggling pin cannot be solved one by one at DC, or None.
+
+    Each phase's DC solution holds only if every capacitor of the region settles early in
+    the phase: a capacitor that does not smooths the drive (an RC filter into an LED from a
+    PWM pin gives the LED a steady, lower current, where phase-by-phase solutions give it
+    the pin's full current in the high phase). The time constant is bounded from above by
+    the capacitor times the resistance its plates see with every diode open, the rails
+    shorted to ground and each pin through its output resistance."""
+    toggling = [p for p in region_pins if p.drive == "toggle" and p.frequency_Hz]
+    capacitors = [x for x in b.elements if x.kind == "C" and (x.value or 0.0) > 0]
+    if not toggling or not capacitors:
+        return None
+    phase = min(min(p.duty, 1 - p.duty) / p.frequency_Hz for p in toggling)
+    if phase <= 0:
+        return None
+    nets = sorted({n for x in b.elements for n in x.nodes} - {GROUND} - set(rail_nets))
+    index = {n: i for i, n in enumerate(nets)}
+    G = np.eye(len(nets)) * 1e-12                  # SPICE's GMIN, so no plate floats
+    for x in b.elements:
+        if x.kind not in "RL" or len(x.nodes) != 2:
+            continue
+        g = 1.0 / max(x.value or 0.0, 1e-3) if x.kind == "R" else 1e3
+        a, c = (index.get(n) for n in x.nodes)
+        for i, j in ((a, c), (c, a)):
+            if i is not None:
+                G[i, i] += g
+                if j is not None:
+                    G[i, j] -= g
+    for n, pin in pin_nets.items():
+        if n in index:
+            G[index[n], index[n]] += 1.0 / max(pin.output_resistance_ohm, 1e-3)
+    for cap in capacitors:
+        port = np.zeros(len(nets))
+        for n, sign in zip(cap.nodes, (1.0, -1.0)):
+            if n in index:
+                port[index[n]] += sign
+        tau = cap.value * float(port @ np.linalg.solve(G, port))
+        if tau > SETTLED_SHARE * phase:
+            pins = ", ".join(p.label for p in toggling)
+            return (f"{cap.name}'s time constant, up to {format_si(tau, 's')}, is not short against "
+                    f"{pins}'s {format_si(phase, 's')} phase: it smooths the drive, which drc's "
+                    "phase-by-phase solution does not follow")
+    return None
+
+
 def _classify_network(b: Branch, rail_nets, pin_nets, corners: Corners) -> None:
     """Drive and phases of a region that is not a plain string."""
     touched = sorted({n for x in b.network.elements for n in x.nodes})
@@ -1111,6 +1185,20 @@ def _classify_network(b: Branch, rail_nets, pin_nets, corners: Corners) -> None:
     region_pins = [pin_nets[n] for n in touched if n in pin_nets]
     if not rails and not region_pins:
         b.note = f"{b.id}'s circuit touches no rail and no port pin"
+        return
+    drives = set(rail_nets) | set(pin_nets)
+    toggling = [p.label for p in region_pins if p.drive == "toggle"]
+    if toggling and not any(n in drives for x in _dc_reach(b, drives | {GROUND}) for n in x.nodes):
+        # the LEDs' steady circuit reaches no rail and no pin: what drives them comes through
+        # a capacitor from a toggling pin, which a DC solution (0 A) cannot see
+        capacitors = ", ".join(x.name for x in b.elements if x.kind == "C")
+        b.note = (f"{b.id} is fed from {', '.join(toggling)} only through {capacitors}: drc "
+                  "models a capacitor-fed LED only as a pump, whose capacitor has a plate on "
+                  "a toggling pin")
+        return
+    slow = _slow_capacitor(b, rail_nets, pin_nets, region_pins)
+    if slow is not None:
+        b.note = slow
         return
     if region_pins:
         b.drive, b.pin, b.source = "pin", region_pins[0], region_pins[0].label

@@ -29,6 +29,7 @@ DIFFER = {
     # black-box parts: an X line with no .subckt is one part to drc, an error to ngspice
     "samples/blackbox_controller.cir": "drc only: black-box controller (samples/README.md)",
     "tests/netlists/blackbox_part.cir": "drc only: black-box controller",
+    "tests/netlists/unchecked/controller_unset.cir": "drc only: black-box controller",
     # IEC 60062: drc reads R47 as 0.47 ohm (and warns); ngspice 39 stops on it
     "tests/netlists/iec_bare_r.cir": "drc only: bare R47 value code",
     # drc refuses an include outside the netlist's folder tree (limits.include_folders);
