@@ -156,7 +156,8 @@ def ngspice_figures(deck: str, temperature_C: float, period_s: float, periods: i
                         for s in pin_sources}}
 
 
-# (netlist, the pump whose output we read)
+# every pump netlist of the samples and of tests/netlists/pumps (a test below holds that);
+# drc's first pump of each is read
 CASES = [
     (SAMPLES / "pump_sensor_1v8.cir"),
     (SAMPLES / "pump_pin_charged.cir"),
@@ -165,11 +166,21 @@ CASES = [
     (PUMPS / "doubler_pin.cir"),
     (PUMPS / "dickson2.cir"),
     (PUMPS / "dickson3.cir"),
+    (PUMPS / "dickson4.cir"),
+    (PUMPS / "bootstrap.cir"),
+    (PUMPS / "doubler_small_cap.cir"),
+    (PUMPS / "twin_doubler_1v8.cir"),
     # pins toggling at 5 Hz: phases of 100 ms, some 350 times the edge's time constant, so
     # the surge, the output's peak and the LED's charge all sit in the first few percent of
     # each phase (the model's step grid once missed them: surge 25 %, peak 15 % short)
     (PUMPS / "doubler_slow_flash.cir"),
 ]
+
+
+def test_every_pump_netlist_is_compared():
+    pump_netlists = {p.name for p in PUMPS.glob("*.cir")} | {
+        p.name for p in SAMPLES.glob("*.cir") if _load(p).design.pumps}
+    assert pump_netlists == {p.name for p in CASES}
 
 
 def _compare(path: Path) -> list[dict]:
