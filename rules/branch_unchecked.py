@@ -33,9 +33,8 @@ def check(design, settings):
             continue
         names = [led.name for led in branch.leds]
         why = branch.note or "drc found nothing that drives it"
-        subject = names[0] if len(names) == 1 else ", ".join(names)
         yield finding(branch.leds[0].element,
-                      f"{subject} {'was' if len(names) == 1 else 'were'} not checked: {why}",
+                      f"{', '.join(names)} {'was' if len(names) == 1 else 'were'} not checked: {why}",
                       elements=[e.name for e in branch.elements], nets=branch.nets,
                       fix="check this branch with a transient simulation, or bring it to a form "
                           "drc models (one toggling frequency per pump; a rail, a port pin or "
