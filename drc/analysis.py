@@ -632,8 +632,9 @@ SLOW_EDGE_SHARE = 0.01   # a PULSE's rise and fall together above this share of 
                          # are said to be taken as steps (see _pulse_pin)
 
 
-def _pulse_timing(e: Element) -> tuple[float, float, float, float, float]:
-    """(high level, low level, frequency, duty, start) of a PULSE source: v1 v2 td tr tf pw per."""
+def _pulse_timing(e: Element) -> tuple[float, float, float, float, float, float, float]:
+    """(high level, low level, frequency, duty, start, rise, fall) of a PULSE source:
+    v1 v2 td tr tf pw per."""
     args = list(e.source.waveform.args) + [0.0] * 7
     v1, v2, td, tr, tf, pw, per = args[:7]
     if per <= 0:
@@ -651,7 +652,7 @@ def _pulse_timing(e: Element) -> tuple[float, float, float, float, float]:
         high, low = v1, v2
         start = td + tr + pw + tf / 2
         width = per - pw - (tr + tf) / 2
-    return high, low, 1.0 / per, min(max(width / per, 0.0), 1.0), start % per
+    return high, low, 1.0 / per, min(max(width / per, 0.0), 1.0), start % per, tr, tf
 
 
 def _pulse_pin(e: Element, spec: PinSpec | None, supplies: dict[str, Supply],
@@ -659,8 +660,7 @@ def _pulse_pin(e: Element, spec: PinSpec | None, supplies: dict[str, Supply],
     net, sign = _source_net(e)
     if net is None:
         return None
-    high, low, frequency, duty, start = _pulse_timing(e)
-    rise, fall = (list(e.source.waveform.args) + [0.0] * 5)[3:5]
+    high, low, frequency, duty, start, rise, fall = _pulse_timing(e)
     if rise + fall > SLOW_EDGE_SHARE / frequency:
         # measured: 200 us edges on a 1 ms period (40 % of it) put a pin-driven red LED's
         # average 34 % above ngspice's .tran
@@ -1144,19 +1144,32 @@ SETTLED_SHARE = 0.05     # a capacitor settles within a phase if its time consta
                          # share of the phase at most (the LED's charge is then some 5 % off)
 
 
-def _slow_capacitor(b: Branch, rail_nets, pin_nets, region_pins) -> str | None:
-    """Why the phases of a toggling pin cannot be solved one by one at DC, or None.
+def _phases_fail(b: Branch, rail_nets, pin_nets, region_pins) -> str | None:
+    """Why a region's phases of its toggling pins cannot be solved one by one at DC, each
+    capacitor open, or None. Two ways:
 
-    Each phase's DC solution holds only if every capacitor of the region settles early in
-    the phase: a capacitor that does not smooths the drive (an RC filter into an LED from a
-    PWM pin gives the LED a steady, lower current, where phase-by-phase solutions give it
-    the pin's full current in the high phase). The time constant is bounded from above by
-    the capacitor times the resistance its plates see with every diode open, the rails
-    shorted to ground and each pin through its output resistance."""
-    toggling = [p for p in region_pins if p.drive == "toggle" and p.frequency_Hz]
+    - the LEDs' steady circuit (_dc_reach) reaches no rail and no pin: what drives them
+      comes through a capacitor from a toggling pin, which a DC solution (0 A) cannot see;
+    - a capacitor does not settle early in the shortest phase, so it smooths the drive (an
+      RC filter into an LED from a PWM pin gives the LED a steady, lower current, where
+      phase-by-phase solutions give it the pin's full current in the high phase). Its time
+      constant is bounded from above by the capacitor times the resistance its plates see
+      with every diode open, the rails shorted to ground and each pin through its output
+      resistance."""
+    toggling = [p for p in region_pins if p.drive == "toggle"]
+    if not toggling:
+        return None
+    drives = set(rail_nets) | set(pin_nets)
+    if not any(n in drives for x in _dc_reach(b, drives | {GROUND}) for n in x.nodes):
+        capacitors = ", ".join(x.name for x in b.elements if x.kind == "C")
+        return (f"{b.id} is fed from {', '.join(p.label for p in toggling)} only through "
+                f"{capacitors}: drc models a capacitor-fed LED only as a pump, whose capacitor "
+                "has a plate on a toggling pin")
+    toggling = [p for p in toggling if p.frequency_Hz]
     capacitors = [x for x in b.elements if x.kind == "C" and (x.value or 0.0) > 0]
     if not toggling or not capacitors:
         return None
+    pins = ", ".join(p.label for p in toggling)
     phase = min(min(p.duty, 1 - p.duty) / p.frequency_Hz for p in toggling)
     if phase <= 0:
         return None
@@ -1183,7 +1196,6 @@ def _slow_capacitor(b: Branch, rail_nets, pin_nets, region_pins) -> str | None:
                 port[index[n]] += sign
         tau = cap.value * float(port @ np.linalg.solve(G, port))
         if tau > SETTLED_SHARE * phase:
-            pins = ", ".join(p.label for p in toggling)
             return (f"{cap.name}'s time constant, up to {format_si(tau, 's')}, is not short against "
                     f"{pins}'s {format_si(phase, 's')} phase: it smooths the drive, which drc's "
                     "phase-by-phase solution does not follow")
@@ -1198,19 +1210,9 @@ def _classify_network(b: Branch, rail_nets, pin_nets, corners: Corners) -> None:
     if not rails and not region_pins:
         b.note = f"{b.id}'s circuit touches no rail and no port pin"
         return
-    drives = set(rail_nets) | set(pin_nets)
-    toggling = [p.label for p in region_pins if p.drive == "toggle"]
-    if toggling and not any(n in drives for x in _dc_reach(b, drives | {GROUND}) for n in x.nodes):
-        # the LEDs' steady circuit reaches no rail and no pin: what drives them comes through
-        # a capacitor from a toggling pin, which a DC solution (0 A) cannot see
-        capacitors = ", ".join(x.name for x in b.elements if x.kind == "C")
-        b.note = (f"{b.id} is fed from {', '.join(toggling)} only through {capacitors}: drc "
-                  "models a capacitor-fed LED only as a pump, whose capacitor has a plate on "
-                  "a toggling pin")
-        return
-    slow = _slow_capacitor(b, rail_nets, pin_nets, region_pins)
-    if slow is not None:
-        b.note = slow
+    failing = _phases_fail(b, rail_nets, pin_nets, region_pins)
+    if failing is not None:
+        b.note = failing
         return
     if region_pins:
         b.drive, b.pin, b.source = "pin", region_pins[0], region_pins[0].label

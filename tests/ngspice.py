@@ -139,3 +139,14 @@ def tran(netlist: str, step_s: float, stop_s: float, vectors: list[str], uic: bo
         result[name] = table[:, i + 1]
     assert len(header) == len(vectors) + 1, header
     return result
+
+
+def tran_average(netlist: str, vector: str, period_s: float, periods: int, points: int = 400,
+                 temperature_C: float | None = None, capped: bool = False) -> float:
+    """The average of `vector` over the last of `periods` periods of a .tran (uic) run,
+    printed every period / `points` (and, `capped`, with its step no longer than that)."""
+    step = period_s / points
+    w = tran(netlist, step, periods * period_s, [vector], temperature_C=temperature_C,
+             max_step_s=step if capped else None)
+    last = w["time"] >= (periods - 1) * period_s
+    return float(np.trapezoid(w[vector][last], w["time"][last]) / period_s)
