@@ -849,6 +849,8 @@ def _trace_branches(flat, terminals, supplies, pins, leds, corners, notes) -> li
     pin_nets = {p.net: p for p in pins.values()}
     stops = set(rail_nets) | set(pin_nets) | {GROUND}
     toggling = {n for n, p in pin_nets.items() if p.drive == "toggle"}
+    lifters = _lifted_through_resistors(toggling, terminals, stops, pin_nets)
+    toggling |= set(lifters)
     pin_labels = {p.label for p in pin_nets.values()}
     seen: set[str] = set()
     branches = []
@@ -954,7 +956,7 @@ def _trace_branches(flat, terminals, supplies, pins, leds, corners, notes) -> li
                                "neither end is a rail, a port pin or ground")
         elif pumped and problem is None:
             _pump_branch(branch, r_nets, r_elements, region_leds, pin_nets, rail_nets, toggling,
-                         pin_labels)
+                         pin_labels, lifters)
         elif problem:
             branch.note = problem
         else:
@@ -1026,14 +1028,33 @@ def _merge_shared_pins(branches, rail_nets, pin_nets, corners, stops) -> list[Br
     return out
 
 
+def _lifted_through_resistors(toggling: set[str], terminals, stops, pin_nets) -> dict:
+    """Nets that a toggling pin lifts through one series resistor: the net's only other
+    terminals are capacitors, so it is a pumping capacitor's plate behind a resistor that
+    limits the pin's current (what pin-overcurrent's fix adds). Each such net maps to its
+    pin, which a pump there is lifted by; the model solves the resistor in the network."""
+    lifted = {}
+    for net in toggling:
+        for e, _ in terminals.get(net, ()):
+            if e.kind != "R" or len(e.nodes) != 2:
+                continue
+            plate = e.nodes[1] if e.nodes[0] == net else e.nodes[0]
+            if plate in stops or plate in lifted:
+                continue
+            others = [x for x, _ in terminals.get(plate, ()) if x.key != e.key]
+            if others and all(x.kind == "C" and len(x.nodes) == 2 for x in others):
+                lifted[plate] = pin_nets[net]
+    return lifted
+
+
 def _pump_branch(branch, r_nets, r_elements, region_leds, pin_nets, rail_nets, toggling,
-                 pin_labels) -> None:
+                 pin_labels, lifters) -> None:
     from drc.pumps import PumpRegion, classify
     touched = sorted({n for x in r_elements for n in x.nodes})
     region_pins = [pin_nets[n] for n in touched if n in pin_nets]
     region_rails = [rail_nets[n] for n in touched if n in rail_nets]
     region = PumpRegion(sorted(r_nets), r_elements, region_pins, region_rails, region_leds)
-    region.pumps = classify(r_elements, pin_nets, rail_nets, toggling, pin_labels,
+    region.pumps = classify(r_elements, {**pin_nets, **lifters}, rail_nets, toggling, pin_labels,
                             leds={l.element.key for l in region_leds})
     for pump in region.pumps:
         pump.region = region
@@ -1164,7 +1185,7 @@ def _phases_fail(b: Branch, rail_nets, pin_nets, region_pins) -> str | None:
         capacitors = ", ".join(x.name for x in b.elements if x.kind == "C")
         return (f"{b.id} is fed from {', '.join(p.label for p in toggling)} only through "
                 f"{capacitors}: drc models a capacitor-fed LED only as a pump, whose capacitor "
-                "has a plate on a toggling pin")
+                "has a plate on a toggling pin, or behind one series resistor from it")
     toggling = [p for p in toggling if p.frequency_Hz]
     capacitors = [x for x in b.elements if x.kind == "C" and (x.value or 0.0) > 0]
     if not toggling or not capacitors:

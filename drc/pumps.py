@@ -34,6 +34,8 @@ class Pump:
     pins: list[str]                  # labels of the pins that lift it
     charge_from: str | None          # the rail's or pin's label the charge diode draws from
     elements: list[Element] = field(default_factory=list)
+    # pin label -> the resistor through which that pin lifts a pumping capacitor, if any
+    pin_resistors: dict[str, Element] = field(default_factory=dict)
     region: "PumpRegion | None" = None
     notes: list[str] = field(default_factory=list)
 
@@ -133,10 +135,16 @@ def classify(region_elements: list[Element], pin_nets: dict, rail_nets: dict,
         else:
             topology = "bootstrap"
         pins = []
+        pin_resistors = {}
         for c in chain:
             label = lifting_pin(c)
             if label not in pins:
                 pins.append(label)
+            plate = c.nodes[0] if c.nodes[0] in toggling else c.nodes[1]
+            pin_net = pin_nets[plate].net
+            if pin_net != plate:      # lifted through a series resistor
+                pin_resistors[label] = next(e for e in region_elements if e.kind == "R"
+                                            and set(e.nodes) == {pin_net, plate})
         if charge_from is not None and charge_from not in pins and charge_from in pin_labels:
             pins.append(charge_from)
         elements = ([charge_diode] if charge_diode else []) + [x for pair in zip(chain, transfers + [None] * len(chain))
@@ -145,9 +153,11 @@ def classify(region_elements: list[Element], pin_nets: dict, rail_nets: dict,
             elements.append(d)
         if reservoir is not None:
             elements.append(reservoir)
+        elements.extend(r for r in pin_resistors.values() if r not in elements)
         pumps.append(Pump(id=cap.name, topology=topology, stages=len(chain), capacitors=chain,
                           charge_diode=charge_diode, transfer_diodes=transfers, reservoir=reservoir,
-                          output_net=output, pins=pins, charge_from=charge_from, elements=elements))
+                          output_net=output, pins=pins, charge_from=charge_from, elements=elements,
+                          pin_resistors=pin_resistors))
     return pumps
 
 

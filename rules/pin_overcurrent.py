@@ -100,8 +100,12 @@ def _phase_words(branch, label, i):
 
 def _fix(design, pin, pumped, current, surge=False):
     drive_V = float(np.max(pin.high_V)) if np.size(pin.high_V) else 0.0
+    pump = pumped[0].pump_region.pumps[0] if pumped else None
+    # a pump lifted through a series resistor already: the fix is that resistor's new value
+    present = pump.pin_resistors.get(pin.label) if pump is not None else None
+    present_ohm = (present.value or 0.0) if present is not None else 0.0
     extra = drive_V / pin.max_current_A - pin.output_resistance_ohm if drive_V > 0 else 0.0
-    if extra <= 0:
+    if extra <= present_ohm:
         return f"add a series resistor on {pin.label}, or move a branch to another pin"
     value = preferred.at_or_above(extra, "E24")
     if not pumped:
@@ -109,7 +113,6 @@ def _fix(design, pin, pumped, current, surge=False):
                 "then check the LEDs' headroom again")
     branch = pumped[0]
     region = branch.pump_region
-    pump = region.pumps[0]
     led = region.leds[0]
     before = branch.current_A[led.name]
     low = worst_low(before)
@@ -119,26 +122,33 @@ def _fix(design, pin, pumped, current, surge=False):
     if key is not None and key in _OUTCOMES:
         outcome = _OUTCOMES[key]
     else:
-        outcome = _search(design, pin, pump, value, low)
+        outcome = _search(design, pin, pump, value, low, present_ohm)
         if key is not None:
             _OUTCOMES[key] = outcome
+
+    def change(ohm, e24=" (E24, IEC 60063)"):
+        if present is not None:
+            return (f"raise {present.name}, in series on {pin.label}, from "
+                    f"{format_resistance(present_ohm)} to {format_resistance(ohm)}{e24}")
+        return f"add {format_resistance(ohm)}{e24} in series on {pin.label}"
     if outcome is None:
-        return (f"a series resistor of at least {format_resistance(value)} on {pin.label}; re-run the "
-                "check with it, as it costs the pump some boost")
+        return (f"{change(value, ' or more')}; re-run the check with it, as it costs the pump "
+                "some boost")
     value, after = outcome
     cost = 100.0 * (1 - after / float(before[low])) if before[low] > 0 else 0.0
-    return (f"add {format_resistance(value)} (E24, IEC 60063) in series on {pin.label}: the model "
+    return (f"{change(value)}: the model "
             f"re-run keeps it under {format_quantity(pin.max_current_A, 'A')}, and it costs "
             f"{led.name} {cost:.0f} % of its average current at the low corner "
             f"({format_quantity(float(before[low]), 'A')} to {format_quantity(after, 'A')})")
 
 
-def _search(design, pin, pump, value, low):
+def _search(design, pin, pump, value, low, present_ohm=0.0):
     """The least E24 value from `value` up that the model shows to keep the pin within its
-    limit, and the LED's average current at the low corner with it; None if none of 8 does."""
+    limit, and the LED's average current at the low corner with it; None if none of 8 does.
+    The value replaces the pin's series resistor of present_ohm, if it has one."""
     for _ in range(8):
         try:
-            r = rerun_pump(design, pump, series_ohm={pin.label: value})
+            r = rerun_pump(design, pump, series_ohm={pin.label: value - present_ohm})
         except Exception:
             break
         worst = max(float(np.max(r.startup_surge_A.get(pin.label, 0.0))),

@@ -1,6 +1,6 @@
 """branch-unchecked: an LED branch drc found but could not compute is reported, not passed
 over in silence. Scenarios of our own (tests/netlists/unchecked/): a doubler whose pins run
-on two clocks, an LED fed from a pin through a resistor and a capacitor (no pump), two LEDs
+on two clocks, an LED fed from a pin through a divider and a capacitor (no pump), two LEDs
 between pins of a controller kept as a black-box part with no [pin] table, a PWM pin into
 an RC filter that feeds an LED.
 

@@ -64,7 +64,29 @@ def test_pin_overcurrent_surge_fix_clears(tmp_path):
     assert re.search(r"costs DL \d+ % of its average current", f["fix"])
     text = (PUMPS / "doubler_rail.cir").read_text().replace("CP ck x 10u", f"RS ck ckr {m.group(1)}\nCP ckr x 10u")
     path = write(tmp_path, "doubler_rail", text, (PUMPS / "doubler_rail.toml").read_text())
-    assert not [g for g in rules_of(check(path), "pin-overcurrent") if "surge" in g["message"]]
+    fixed = check(path)
+    # still a pump, now lifted through RS (before pumps behind a pin resistor were recognised,
+    # the fixed netlist had no pump at all, and so no surge finding)
+    assert [p["topology"] for p in fixed["pumps"]] == ["doubler"]
+    assert "RS" in fixed["pumps"][0]["elements"]
+    assert not [g for g in rules_of(fixed, "pin-overcurrent") if "surge" in g["message"]]
+
+
+def test_pin_overcurrent_fix_raises_the_pin_resistor(tmp_path):
+    """A pump that the pin lifts through RCK (33 ohm) still surges past 20 mA: the fix is
+    RCK's new E24 value, not another resistor beside it, and with it the surge clears."""
+    report = check(PUMPS / "doubler_pin_resistor.cir")
+    [f] = [f for f in rules_of(report, "pin-overcurrent") if "surge" in f["message"]]
+    assert "RCK" in f["elements"]
+    m = re.search(r"raise RCK, in series on CK, from 33 Ω to (\d+) Ω \(E24", f["fix"])
+    assert m, f["fix"]
+    assert int(m.group(1)) > 33
+    text = (PUMPS / "doubler_pin_resistor.cir").read_text().replace("RCK ck lift 33",
+                                                                    f"RCK ck lift {m.group(1)}")
+    path = write(tmp_path, "lifted", text, (PUMPS / "doubler_pin_resistor.toml").read_text())
+    fixed = check(path)
+    assert [p["topology"] for p in fixed["pumps"]] == ["doubler"]
+    assert not [g for g in rules_of(fixed, "pin-overcurrent") if "surge" in g["message"]]
 
 
 def test_reverse_leak_bootstrap_without_diode():

@@ -170,6 +170,10 @@ CASES = [
     (PUMPS / "bootstrap.cir"),
     (PUMPS / "doubler_small_cap.cir"),
     (PUMPS / "twin_doubler_1v8.cir"),
+    # the pin lifts the pumping capacitor through a series resistor (pin-overcurrent's fix)
+    (PUMPS / "doubler_pin_resistor.cir"),
+    # an LED coupled through a capacitor, with a diode restoring the plate: a bootstrap
+    (PUMPS / "coupled_restorer.cir"),
     # pins toggling at 5 Hz: phases of 100 ms, some 350 times the edge's time constant, so
     # the surge, the output's peak and the LED's charge all sit in the first few percent of
     # each phase (the model's step grid once missed them: surge 25 %, peak 15 % short)
@@ -300,7 +304,7 @@ def _report(path: Path) -> dict:
 @pytest.fixture(scope="module")
 def reports():
     names = ["doubler_rail", "doubler_rail_res", "doubler_pin", "dickson2", "dickson3",
-             "dickson4", "bootstrap", "doubler_slow_flash"]
+             "dickson4", "bootstrap", "doubler_slow_flash", "doubler_pin_resistor"]
     with ThreadPoolExecutor(max_workers=4) as pool:
         return dict(zip(names, pool.map(lambda n: _report(PUMPS / f"{n}.cir"), names)))
 
@@ -313,6 +317,7 @@ TOPOLOGIES = [
     ("doubler_rail_res", "doubler", 1, ["DCH", "CP", "DTR", "CR"], "out"),
     ("doubler_pin", "doubler", 1, ["DCH", "CP", "DTR", "CR"], "out"),
     ("doubler_slow_flash", "doubler", 1, ["DCH", "CP", "DTR", "CR"], "out"),
+    ("doubler_pin_resistor", "doubler", 1, ["DCH", "CP", "DTR", "RCK"], "out"),
     ("dickson2", "dickson", 2, ["D1", "C1", "D2", "C2", "D3", "CR"], "out"),
     ("dickson3", "dickson", 3, ["D1", "C1", "D2", "C2", "D3", "C3", "D4", "CR"], "out"),
     ("dickson4", "dickson", 4, ["D1", "C1", "D2", "C2", "D3", "C3", "D4", "C4", "D5", "CR"], "out"),
