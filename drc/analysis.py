@@ -851,6 +851,7 @@ def _trace_branches(flat, terminals, supplies, pins, leds, corners, notes) -> li
     toggling = {n for n, p in pin_nets.items() if p.drive == "toggle"}
     lifters = _lifted_through_resistors(toggling, terminals, stops, pin_nets)
     toggling |= set(lifters)
+    lifting = {**pin_nets, **lifters} if lifters else pin_nets   # net -> the pin lifting it
     pin_labels = {p.label for p in pin_nets.values()}
     seen: set[str] = set()
     branches = []
@@ -956,7 +957,7 @@ def _trace_branches(flat, terminals, supplies, pins, leds, corners, notes) -> li
                                "neither end is a rail, a port pin or ground")
         elif pumped and problem is None:
             _pump_branch(branch, r_nets, r_elements, region_leds, pin_nets, rail_nets, toggling,
-                         pin_labels, lifters)
+                         pin_labels, lifting)
         elif problem:
             branch.note = problem
         else:
@@ -1048,13 +1049,13 @@ def _lifted_through_resistors(toggling: set[str], terminals, stops, pin_nets) ->
 
 
 def _pump_branch(branch, r_nets, r_elements, region_leds, pin_nets, rail_nets, toggling,
-                 pin_labels, lifters) -> None:
+                 pin_labels, lifting) -> None:
     from drc.pumps import PumpRegion, classify
     touched = sorted({n for x in r_elements for n in x.nodes})
     region_pins = [pin_nets[n] for n in touched if n in pin_nets]
     region_rails = [rail_nets[n] for n in touched if n in rail_nets]
     region = PumpRegion(sorted(r_nets), r_elements, region_pins, region_rails, region_leds)
-    region.pumps = classify(r_elements, {**pin_nets, **lifters}, rail_nets, toggling, pin_labels,
+    region.pumps = classify(r_elements, lifting, rail_nets, toggling, pin_labels,
                             leds={l.element.key for l in region_leds})
     for pump in region.pumps:
         pump.region = region

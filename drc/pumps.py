@@ -62,7 +62,10 @@ class PumpRegion:
 def classify(region_elements: list[Element], pin_nets: dict, rail_nets: dict,
              toggling: set | None = None, pin_labels: set | None = None,
              leds: set | None = None) -> list[Pump]:
-    """The pumps among a region's elements: chains of pumping capacitors joined by diodes."""
+    """The pumps among a region's elements: chains of pumping capacitors joined by diodes.
+
+    pin_nets maps a net to the pin on it, and also a plate net behind one series resistor
+    from a toggling pin to that pin (such nets are in `toggling` too)."""
     if toggling is None:
         toggling = {n for n, p in pin_nets.items() if p.drive == "toggle"}
     if pin_labels is None:
