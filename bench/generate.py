@@ -42,12 +42,40 @@ CAPACITORS = ["100p", "1n", "10n", "100n", "1u", "4.7u", "10u"]
 LEDS_FOR_RAIL = {"vbat": ["LED_RED", "LED_GRN", "LED_IR"], "v3v3": ["LED_RED", "LED_GRN",
                  "LED_WHT", "LED_IR"], "v1v8": ["LED_RED", "LED_IR"]}
 
+# What a designer puts on the board. Each value passes drc's check at every corner of the
+# board's design context (config_text): found once by running candidate E24 values of each
+# block through drc, and taken from the middle of the passing range. A few values per
+# (rail, LED), as real boards reuse parts. Combinations with no passing value (a red LED on
+# 1.8 V; green on the coin cell's 2.0 V end of life, unpumped) are not designed in.
+DESIGNED_R = {  # (rail, LED) -> the series resistor of one LED
+    ("vbat", "LED_RED"): ["120", "150", "180"], ("vbat", "LED_IR"): ["220", "330", "470", "680"],
+    ("v3v3", "LED_RED"): ["220", "330", "470", "680"], ("v3v3", "LED_GRN"): ["68", "100", "150", "220"],
+    ("v3v3", "LED_WHT"): ["68", "100", "150", "220"], ("v3v3", "LED_IR"): ["330", "470", "680", "1k"],
+    ("v1v8", "LED_IR"): ["100", "150", "220", "330"],
+}
+DESIGNED_SHARED_R = {  # (rail, LED) -> one resistor that two LEDs side by side share
+    ("vbat", "LED_RED"): ["68", "100"], ("vbat", "LED_IR"): ["100", "150", "220"],
+    ("v3v3", "LED_RED"): ["150", "220", "330"], ("v3v3", "LED_GRN"): ["47", "68", "100"],
+    ("v3v3", "LED_WHT"): ["47", "68", "100"], ("v3v3", "LED_IR"): ["150", "220", "330"],
+    ("v1v8", "LED_IR"): ["68", "100", "150"],
+}
+DESIGNED_TOGGLED_R = {  # (rail, LED) -> the series resistor of one LED on a toggling pin
+    ("vbat", "LED_RED"): ["39", "47"], ("vbat", "LED_IR"): ["150", "220", "330"],
+    ("v3v3", "LED_RED"): ["100", "150", "220"], ("v3v3", "LED_GRN"): ["56", "68", "100"],
+    ("v3v3", "LED_WHT"): ["56", "68", "100"], ("v3v3", "LED_IR"): ["220", "330", "470"],
+    ("v1v8", "LED_IR"): ["68", "100", "150"],
+}
+DESIGNED_SERIES_R = ["68", "100", "150"]     # two IR LEDs in series on 3.3 V
+DESIGNED_PERIOD = "0.25m"    # 4 kHz: above IEEE 1789's no-observable-effect line
+FAULTY_SHARE = 0.05          # blocks drawn at random, as earlier boards were: the findings
+
 
 class Board:
     """Accumulates cards with unique names and counts the elements."""
 
     def __init__(self, rng: random.Random) -> None:
         self.rng = rng
+        self.faulty = True       # this block's values drawn at random, not designed
         self.lines: list[str] = []
         self.elements = 0
         self.counter: dict[str, int] = {}
@@ -78,7 +106,7 @@ class Board:
             period: str = "0.5m") -> str:
         ref = self.name("VP")
         if toggle:
-            half = {"0.5m": "0.25m", "1m": "0.5m", "100m": "20m"}[period]
+            half = {"0.25m": "0.125m", "0.5m": "0.25m", "1m": "0.5m", "100m": "20m"}[period]
             delay = half if delayed else "0"
             if self.rng.random() < 0.25:
                 self.lines.append(f"{ref} {net} 0 PULSE(0 {volts:g} {delay} 10n 10n")
@@ -95,63 +123,92 @@ def rail(rng: random.Random) -> tuple[str, str, float, tuple[str, str]]:
     return rng.choice(RAILS)
 
 
+def led_and_resistor(b: Board, table: dict) -> tuple[str, float, str, str]:
+    """A rail, its volts, an LED model and a series resistor: designed (from `table`), or
+    for a faulty block any LED of the rail with any resistor."""
+    if b.faulty:
+        _, net, volts, _ = rail(b.rng)
+        return net, volts, b.rng.choice(LEDS_FOR_RAIL[net]), b.rng.choice(LED_RESISTORS)
+    net, model = b.rng.choice(list(table))
+    volts = next(v for _, n, v, _ in RAILS if n == net)
+    return net, volts, model, b.rng.choice(table[(net, model)])
+
+
 def block_pin_driven(b: Board, k: int) -> None:
-    src, net, volts, _ = rail(b.rng)
+    toggle = b.rng.random() < 0.3
+    net, volts, model, resistor = led_and_resistor(b, DESIGNED_TOGGLED_R if toggle else DESIGNED_R)
     pin = f"pd{k}"
-    b.pin(pin, volts, toggle=b.rng.random() < 0.3,
-          period=b.rng.choice(["0.5m", "1m", "100m"]))
-    b.two_terminal("R", pin, f"pd{k}_a", b.rng.choice(LED_RESISTORS))
-    b.card(f"{b.name('D')} pd{k}_a 0 {b.rng.choice(LEDS_FOR_RAIL[net])}")
+    period = b.rng.choice(["0.5m", "1m", "100m"]) if b.faulty else DESIGNED_PERIOD
+    b.pin(pin, volts, toggle=toggle, period=period)
+    b.two_terminal("R", pin, f"pd{k}_a", resistor)
+    b.card(f"{b.name('D')} pd{k}_a 0 {model}")
 
 
 def block_rail_driven(b: Board, k: int) -> None:
-    _, net, _, _ = rail(b.rng)
-    b.two_terminal("R", net, f"rd{k}_a", b.rng.choice(LED_RESISTORS))
-    b.card(f"{b.name('D')} rd{k}_a 0 {b.rng.choice(LEDS_FOR_RAIL[net])}")
+    net, _, model, resistor = led_and_resistor(b, DESIGNED_R)
+    b.two_terminal("R", net, f"rd{k}_a", resistor)
+    b.card(f"{b.name('D')} rd{k}_a 0 {model}")
 
 
 def block_sinking(b: Board, k: int) -> None:
-    _, net, _, _ = rail(b.rng)
-    b.card(f"{b.name('D')} {net} sk{k}_k {b.rng.choice(LEDS_FOR_RAIL[net])}")
-    b.two_terminal("R", f"sk{k}_k", f"sk{k}_p", b.rng.choice(LED_RESISTORS))
+    net, _, model, resistor = led_and_resistor(b, DESIGNED_R)
+    b.card(f"{b.name('D')} {net} sk{k}_k {model}")
+    b.two_terminal("R", f"sk{k}_k", f"sk{k}_p", resistor)
     b.pin(f"sk{k}_p", 0.0, toggle=False)
 
 
 def block_series(b: Board, k: int) -> None:
-    b.two_terminal("R", "v3v3", f"se{k}_a", b.rng.choice(["22", "33", "47", "68"]))
+    resistor = b.rng.choice(["22", "33", "47", "68"] if b.faulty else DESIGNED_SERIES_R)
+    b.two_terminal("R", "v3v3", f"se{k}_a", resistor)
     b.card(f"{b.name('D')} se{k}_a se{k}_m LED_IR")
     b.card(f"{b.name('D')} se{k}_m 0 LED_IR")
 
 
 def block_parallel(b: Board, k: int) -> None:
-    _, net, volts, _ = rail(b.rng)
-    model = b.rng.choice(LEDS_FOR_RAIL[net])
+    own = b.rng.random() < 0.5    # one resistor per LED, or two LEDs sharing one
+    net, volts, model, resistor = led_and_resistor(b, DESIGNED_R if own else DESIGNED_SHARED_R)
     pin = f"pl{k}"
     b.pin(pin, volts, toggle=False)
-    if b.rng.random() < 0.5:  # one resistor per LED
+    if own:
         for j in range(2):
-            b.two_terminal("R", pin, f"pl{k}_{j}", b.rng.choice(LED_RESISTORS))
+            b.two_terminal("R", pin, f"pl{k}_{j}", resistor if j == 0 or not b.faulty
+                           else b.rng.choice(LED_RESISTORS))
             b.card(f"{b.name('D')} pl{k}_{j} 0 {model}")
-    else:  # two LEDs sharing one resistor
-        b.two_terminal("R", pin, f"pl{k}_a", b.rng.choice(LED_RESISTORS))
+    else:
+        b.two_terminal("R", pin, f"pl{k}_a", resistor)
         b.card(f"{b.name('D')} pl{k}_a 0 {model}")
         b.card(f"{b.name('D')} pl{k}_a 0 {model}")
 
 
-# A board reuses a few standard pump cells (rail, pumping capacitor, LED, series resistor),
-# as real designs reuse a validated cell; drc simulates each distinct cell once.
-PUMP_CELLS = [(RAILS[0], "10u", "LED_WHT", "47"), (RAILS[2], "10u", "LED_WHT", "22"),
-              (RAILS[2], "22u", "LED_GRN", "47"), (RAILS[0], "4.7u", "LED_GRN", "68")]
+# A board reuses a few standard pump cells (rail, pumping capacitor, LED, series resistor,
+# the pin's series resistor, a reservoir capacitor), as real designs reuse a validated cell;
+# drc simulates each distinct cell once. The designed cells pass drc's check at every corner
+# (found as DESIGNED_R was); the faulty ones are those of earlier boards, straight from the pin.
+PUMP_CELLS = [(RAILS[0], "10u", "LED_WHT", "47", None, None),
+              (RAILS[2], "10u", "LED_WHT", "22", None, None),
+              (RAILS[2], "22u", "LED_GRN", "47", None, None),
+              (RAILS[0], "4.7u", "LED_GRN", "68", None, None)]
+DESIGNED_PUMP_CELLS = [(RAILS[0], "10u", "LED_WHT", "22", "120", None),
+                       (RAILS[0], "22u", "LED_GRN", "47", "120", "2.2u"),
+                       (RAILS[0], "10u", "LED_GRN", "10", "120", "2.2u")]
 
 
 def block_pump(b: Board, k: int) -> None:
-    """A doubler: charge diode from the rail, capacitor lifted by a toggling pin, transfer
-    diode, then the LED and its resistor to ground."""
-    (_, net, volts, _), cap, led, resistor = b.rng.choice(PUMP_CELLS)
-    b.pin(f"pu{k}_pa", volts, toggle=True, period="0.5m")
+    """A doubler: charge diode from the rail, capacitor lifted by a toggling pin (through a
+    series resistor, in the designed cells), transfer diode, a reservoir capacitor in some,
+    then the LED and its resistor to ground."""
+    cell = b.rng.choice(PUMP_CELLS if b.faulty else DESIGNED_PUMP_CELLS)
+    (_, net, volts, _), cap, led, resistor, pin_resistor, reservoir = cell
+    b.pin(f"pu{k}_pa", volts, toggle=True, period="0.5m" if b.faulty else DESIGNED_PERIOD)
+    lifted = f"pu{k}_pa"
+    if pin_resistor is not None:
+        lifted = f"pu{k}_pr"
+        b.two_terminal("R", f"pu{k}_pa", lifted, pin_resistor)
     b.card(f"{b.name('D')} {net} pu{k}_x SCHOTTKY")
-    b.two_terminal("C", f"pu{k}_pa", f"pu{k}_x", cap)
+    b.two_terminal("C", lifted, f"pu{k}_x", cap)
     b.card(f"{b.name('D')} pu{k}_x pu{k}_o SCHOTTKY")
+    if reservoir is not None:
+        b.two_terminal("C", f"pu{k}_o", "0", reservoir)
     b.card(f"{b.name('D')} pu{k}_o pu{k}_k {led}")
     b.two_terminal("R", f"pu{k}_k", "0", resistor)
 
@@ -174,11 +231,13 @@ BLOCKS = [
 ]
 
 
-def generate(n: int) -> tuple[str, int]:
-    """The netlist text of about n elements, and its exact element count."""
+def generate(n: int, faulty: float = FAULTY_SHARE) -> tuple[str, int]:
+    """The netlist text of about n elements, and its exact element count. A share `faulty`
+    of the blocks (1.0: all of them) take random values; the rest take designed ones."""
     rng = random.Random(SEED)
     board = Board(rng)
-    board.lines.append(f"Benchmark board of about {n} elements (drc bench/generate.py, seed {SEED})")
+    board.lines.append(f"Benchmark board of about {n} elements (drc bench/generate.py, seed {SEED}, "
+                       f"{faulty:.0%} of its blocks drawn at random)")
     board.comment("a made-up controller board: indicators, doubler pumps, filters, decoupling")
     board.lines.extend(MODELS.splitlines())
     for src, net, volts, _ in RAILS:
@@ -190,6 +249,7 @@ def generate(n: int) -> tuple[str, int]:
         k += 1
         if k % 500 == 1:
             board.comment(f"sheet {k // 500 + 1}")
+        board.faulty = rng.random() < faulty
         rng.choices(funcs, weights)[0](board, k)
     board.lines.append(".end")
     return "\n".join(board.lines) + "\n", board.elements
@@ -210,13 +270,19 @@ def config_text() -> str:
 
 
 def main(argv: list[str]) -> int:
-    if len(argv) != 3:
-        print("usage: python bench/generate.py N OUT.cir", file=sys.stderr)
+    faulty = FAULTY_SHARE
+    if "--faulty" in argv[:-1]:
+        k = argv.index("--faulty")
+        faulty = float(argv[k + 1])
+        del argv[k:k + 2]
+    if len(argv) != 3 or not 0.0 <= faulty <= 1.0:
+        print("usage: python bench/generate.py N OUT.cir [--faulty SHARE]   (SHARE 0 to 1, "
+              f"default {FAULTY_SHARE})", file=sys.stderr)
         return 2
     n = int(argv[1].replace("_", ""))
     out = Path(argv[2])
     out.parent.mkdir(parents=True, exist_ok=True)
-    text, count = generate(n)
+    text, count = generate(n, faulty)
     out.write_text(text)
     out.with_suffix(".toml").write_text(config_text())
     print(f"{out}: {count} elements, {text.count(chr(10))} lines")

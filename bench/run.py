@@ -2,7 +2,9 @@
 
     python bench/run.py [N ...]          (default: 10000 100000)
 
-For each N: generate bench/out/board_N.cir (bench/generate.py), time `ngspice -b` loading
+For each N: generate bench/out/board_N.cir (bench/generate.py: designed values, 5 % of its
+blocks drawn at random), and for the largest N also bench/out/board_N_random.cir (every
+block drawn at random: nearly every branch fails, the stress case), time `ngspice -b` loading
 it with no analysis, and time `python -m drc check FILE --format json --output /dev/null`
 run from the repository root (after one untimed run, with Python's bytecode cache on, as an
 installed drc has it); each the median of 3 runs, wall-clock. Prints one table.
@@ -31,7 +33,7 @@ RUNS = 3
 DEFAULT_SIZES = (10_000, 100_000)
 
 sys.path.insert(0, str(HERE))
-from generate import generate, config_text  # noqa: E402
+from generate import FAULTY_SHARE, generate, config_text  # noqa: E402
 
 
 def timed(cmd: list[str], cwd: Path, env: dict | None = None
@@ -146,9 +148,10 @@ def main(argv: list[str]) -> int:
     exe = shutil.which("ngspice")
     OUT.mkdir(exist_ok=True)
     rows = []
-    for n in sizes:
-        deck = OUT / f"board_{n}.cir"
-        text, count = generate(n)
+    boards = [(n, FAULTY_SHARE) for n in sizes] + [(max(sizes), 1.0)]
+    for n, faulty in boards:
+        deck = OUT / (f"board_{n}.cir" if faulty == FAULTY_SHARE else f"board_{n}_random.cir")
+        text, count = generate(n, faulty)
         deck.write_text(text)
         deck.with_suffix(".toml").write_text(config_text())
         ng, ng_note = (None, "ngspice not installed") if exe is None else time_ngspice(exe, deck)
@@ -159,23 +162,25 @@ def main(argv: list[str]) -> int:
         for note in (ng_note, drc_note, reading_note):
             if note:
                 print(f"N={count}: {note}")
-        rows.append((count, drc, ng, reading))
+        rows.append((count, f"{faulty:.0%}", drc, ng, reading))
     if exe is not None:
         print(f"ngspice start-up (two-card deck): {startup_ngspice(exe):.3f} s")
 
     def cell(x: float | None, fmt: str) -> str:
         return "-" if x is None else format(x, fmt)
 
-    print(f"{'N':>8} {'drc s':>8} {'ngspice s':>10} {'ratio':>6} {'drc us/elem':>12} "
+    print(f"{'N':>8} {'random':>6} {'drc s':>8} {'ngspice s':>10} {'ratio':>6} {'drc us/elem':>12} "
           f"{'reading s':>10} {'ratio':>6}")
     per_element = []
-    for count, drc, ng, reading in rows:
+    for count, random_share, drc, ng, reading in rows:
         ratio = drc / ng if drc is not None and ng else None
         us = drc / count * 1e6 if drc is not None else None
         reading_ratio = reading / ng if reading is not None and ng else None
-        per_element.append((count, us))
-        print(f"{count:>8} {cell(drc, '.3f'):>8} {cell(ng, '.3f'):>10} {cell(ratio, '.2f'):>6} "
-              f"{cell(us, '.2f'):>12} {cell(reading, '.3f'):>10} {cell(reading_ratio, '.2f'):>6}")
+        if random_share == f"{FAULTY_SHARE:.0%}":
+            per_element.append((count, us))
+        print(f"{count:>8} {random_share:>6} {cell(drc, '.3f'):>8} {cell(ng, '.3f'):>10} "
+              f"{cell(ratio, '.2f'):>6} {cell(us, '.2f'):>12} {cell(reading, '.3f'):>10} "
+              f"{cell(reading_ratio, '.2f'):>6}")
     small = next((us for c, us in per_element if 9_000 <= c <= 11_000), None)
     large = next((us for c, us in per_element if 90_000 <= c <= 110_000), None)
     if small is not None and large is not None:

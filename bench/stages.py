@@ -1,9 +1,10 @@
 """Time each stage of one `drc check` separately on a generated board.
 
-    python bench/stages.py [N ...]       (default: 10000 100000)
+    python bench/stages.py [N ...] [--repeat R] [--faulty SHARE]   (default: 10000 100000)
 
 For each N, a fresh interpreter (so imports are timed cold) generates bench/out/board_N.cir
-and its design context (bench/generate.py), then runs the check the way `drc check FILE
+and its design context (bench/generate.py; --faulty: the share of blocks drawn at random,
+1 for the stress board), then runs the check the way `drc check FILE
 --format json --output /dev/null` does (gc off, as drc/cli.py does), timing:
 
 - import:  importing the modules `drc check` loads (drc.cli, drc.engine, drc.report);
@@ -36,13 +37,13 @@ STAGES = ("import", "context", "read", "expand", "analyse", "rules", "report")
 DEFAULT_SIZES = (10_000, 100_000)
 
 
-def _one(n: int, repeat: int) -> dict:
+def _one(n: int, repeat: int, faulty: float) -> dict:
     sys.path.insert(0, str(HERE))
-    from generate import config_text, generate
+    from generate import FAULTY_SHARE, config_text, generate
 
     OUT.mkdir(exist_ok=True)
-    deck = OUT / f"board_{n}.cir"
-    text, count = generate(n)
+    deck = OUT / (f"board_{n}.cir" if faulty == FAULTY_SHARE else f"board_{n}_random{faulty:g}.cir")
+    text, count = generate(n, faulty)
     if not deck.exists() or deck.read_text() != text:
         deck.write_text(text)
     deck.with_suffix(".toml").write_text(config_text())
@@ -138,19 +139,27 @@ def _gathered(check, spent):
 
 def main(argv: list[str]) -> int:
     args = argv[1:]
-    repeat = 1
-    if "--repeat" in args:
-        k = args.index("--repeat")
-        repeat = int(args[k + 1])
-        del args[k:k + 2]
+    options = {"--repeat": "1", "--faulty": None}
+    for flag in options:
+        if flag in args:
+            k = args.index(flag)
+            options[flag] = args[k + 1]
+            del args[k:k + 2]
+    repeat = int(options["--repeat"])
+    if options["--faulty"] is None:
+        sys.path.insert(0, str(HERE))
+        from generate import FAULTY_SHARE
+        options["--faulty"] = str(FAULTY_SHARE)
+    faulty = float(options["--faulty"])
     if args and args[0] == "--one":
-        print(json.dumps(_one(int(args[1]), repeat)))
+        print(json.dumps(_one(int(args[1]), repeat, faulty)))
         return 0
     sizes = [int(a.replace("_", "")) for a in args] or list(DEFAULT_SIZES)
     rows = []
     for n in sizes:
         done = subprocess.run([sys.executable, str(Path(__file__).resolve()), "--one", str(n),
-                               "--repeat", str(repeat)], cwd=ROOT, capture_output=True, text=True)
+                               "--repeat", str(repeat), "--faulty", str(faulty)],
+                              cwd=ROOT, capture_output=True, text=True)
         if done.returncode != 0:
             print(f"N={n}: failed: {(done.stderr.strip().splitlines() or ['?'])[-1]}")
             continue
