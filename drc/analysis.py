@@ -1078,7 +1078,6 @@ def _solve_pump_branch(b: Branch, corners: Corners, flat: FlatDesign) -> None:
     its own names, as drc.pumps would give it, without building its network again."""
     from drc.pumps import result_for_twin, solve_on_own_corners
     region = b.pump_region
-    load = region.leds[0]
     key, nets = _pump_key(region, corners, flat)
     known = PUMP_SOLUTIONS.get(key)
     if known is None:
@@ -1087,26 +1086,24 @@ def _solve_pump_branch(b: Branch, corners: Corners, flat: FlatDesign) -> None:
         except (ValueError, FloatingPointError, np.linalg.LinAlgError) as error:
             b.note = f"{b.id}: the pump model could not solve this circuit ({error})"
             return
-        forward = voltage_at_current(load.params, np.maximum(result.load_average_A, 1e-15),
-                                     corners.temperature_K)
+        # each LED's forward voltage at its average current, in the order of region.leds
+        forward = [voltage_at_current(led.params, np.maximum(result.diode_average_A[led.name], 1e-15),
+                                      corners.temperature_K) for led in region.leds]
         PUMP_SOLUTIONS.put(key, (region, nets, result, forward))
     else:
         first, first_nets, first_result, forward = known
         result = result_for_twin(first_result, first, region, first_nets, nets)
         region.signature = first.signature
     region.result = result
-    name = load.name
-    b.current_A = {name: result.load_average_A}
-    b.peak_current_A = {name: result.load_peak_A}
-    b.forward_V = {name: forward}
-    b.reverse_V = {name: np.maximum(result.diode_reverse_max_V.get(name, np.zeros(corners.count)), 0.0)}
+    # every LED the pump feeds (the model solves them all; the first is its load)
+    b.current_A = {led.name: result.diode_average_A[led.name] for led in region.leds}
+    b.peak_current_A = {led.name: result.diode_peak_A[led.name] for led in region.leds}
+    b.forward_V = {led.name: v for led, v in zip(region.leds, forward)}
+    b.reverse_V = {led.name: np.maximum(result.diode_reverse_max_V.get(led.name, np.zeros(corners.count)), 0.0)
+                   for led in region.leds}
     b.pin_current_A = {label: np.maximum(result.pin_high_peak_A[label], result.pin_low_peak_A[label])
                        for label in result.pin_high_peak_A if label in {p.label for p in region.pins}}
     b.series_resistance_ohm = np.full(corners.count, sum(x.value or 0.0 for x in b.resistors)) * corners.resistor_factor
-    if len(region.leds) > 1:
-        b.note = (f"{b.id}'s pump also feeds {', '.join(l.name for l in region.leds[1:])}: "
-                  f"drc takes {name} as its load")
-        b.leds = [load]
 
 
 def _pump_key(region, corners: Corners, flat: FlatDesign):
@@ -1117,12 +1114,14 @@ def _pump_key(region, corners: Corners, flat: FlatDesign):
     net and the corner set; what drc.pumps builds the model network from."""
     canon = Canon()
     load = region.leds[0]
+    leds = {led.element.key: led for led in region.leds}
     parts = []
     for x in region.elements:
         nodes = tuple(canon(n) for n in x.nodes)
         if x.kind == "D":
-            led = x.key == load.element.key
-            parts.append(("D", nodes, diode_params(flat, x), led, load.params if led else None))
+            led = leds.get(x.key)
+            parts.append(("D", nodes, diode_params(flat, x), x.key == load.element.key,
+                          led.params if led is not None else None))
         else:
             parts.append((x.kind, nodes, x.value))
     pins = tuple((canon(p.net), p.drive, p.supply, p.output_resistance_ohm, p.frequency_Hz, p.duty,

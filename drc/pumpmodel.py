@@ -158,6 +158,11 @@ class PumpResult:
     # the network's capacitors: a re-run of the same pump with a change starts from them
     # (drc.pumps.expand_result leaves them on the reduced corners, as the waveforms)
     steady_x: np.ndarray | None = None
+    # every diode's average and peak current over the steady period, and its current on the
+    # grid as load_current_A (a pump may feed more than one LED; the load is the first)
+    diode_average_A: dict[str, np.ndarray] = field(default_factory=dict)
+    diode_peak_A: dict[str, np.ndarray] = field(default_factory=dict)
+    diode_current_A: dict[str, np.ndarray] = field(default_factory=dict)
 
 
 def dickson_estimate(vin, vphi, vd, stages, iout, f, c):
@@ -722,7 +727,12 @@ def simulate_periodic(network: PumpNetwork, temperature_K, output_node: str, loa
                   load_peak_A=load_i.max(axis=0) if load is not None else np.full(C, np.nan),
                   pin_high_peak_A=pin_high, pin_low_peak_A=pin_low,
                   diode_reverse_max_V=reverse, startup_surge_A=surge, settled=settled,
-                  steady_x=x)
+                  steady_x=x,
+                  diode_average_A={name: (cur[:, :, k] * weights).sum(axis=0)
+                                   for k, name in enumerate(sys.diode_names)},
+                  diode_peak_A={name: cur[:, :, k].max(axis=0) for k, name in enumerate(sys.diode_names)},
+                  diode_current_A={name: np.concatenate([cur[-1:, :, k], cur[:, :, k]], 0).T
+                                   for k, name in enumerate(sys.diode_names)})
     names = sys.node_names
     time_axis = np.concatenate([[0.0], sys.step_end_s])
     wave = {name: np.concatenate([V[-1:, :, i], V[:, :, i]], 0).T for i, name in enumerate(names)}

@@ -225,7 +225,8 @@ def expand_result(result, inverse):
                 "startup_time_s", "waveform_time_s"):
             setattr(out, f.name, value[inverse])
         elif isinstance(value, dict) and f.name in ("pin_high_peak_A", "pin_low_peak_A",
-                                                     "diode_reverse_max_V", "startup_surge_A"):
+                                                     "diode_reverse_max_V", "startup_surge_A",
+                                                     "diode_average_A", "diode_peak_A"):
             setattr(out, f.name, {k: v[inverse] for k, v in value.items()})
     out.corner_index = inverse
     return out
@@ -328,7 +329,8 @@ def _with_names(result, pin_map, diode_map, node_map):
     for field_name in ("pin_high_peak_A", "pin_low_peak_A", "startup_surge_A", "pin_current_A",
                        "startup_pin_current_A"):
         setattr(out, field_name, {pin_map.get(k, k): v for k, v in getattr(result, field_name).items()})
-    out.diode_reverse_max_V = {diode_map.get(k, k): v for k, v in result.diode_reverse_max_V.items()}
+    for field_name in ("diode_reverse_max_V", "diode_average_A", "diode_peak_A", "diode_current_A"):
+        setattr(out, field_name, {diode_map.get(k, k): v for k, v in getattr(result, field_name).items()})
     for field_name in ("waveform_V", "startup_V"):
         setattr(out, field_name, {node_map.get(k, k): v for k, v in getattr(result, field_name).items()})
     return out

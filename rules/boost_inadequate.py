@@ -40,22 +40,27 @@ def check(design, settings):
             continue
         region = branch.pump_region
         pump = region.pumps[0]
-        led = region.leds[0]
-        current = branch.current_A[led.name]
-        i = worst_low(current)
-        if current[i] >= led.visible_current_A:
-            continue
-        result = region.result
-        yield finding(led.element,
-                      f"{led.name} gets {format_quantity(float(current[i]), 'A')} on average from pump "
-                      f"{pump.id} at the low corner, below its visible "
-                      f"{format_quantity(led.visible_current_A, 'A')} (the pump gives "
-                      f"{float(result.average_V[i]):.2f} V on average, {float(result.peak_V[i]):.2f} V at peak)",
-                      elements=[e.name for e in pump.elements] + [led.name], nets=[pump.output_net],
-                      corner=corner(design, i),
-                      values={"current_A": float(current[i]), "visible_current_A": led.visible_current_A,
-                              "average_V": float(result.average_V[i]), "peak_V": float(result.peak_V[i])},
-                      fix=_fix(design, pump, led), caution=branch_cautions(design, branch))
+        for led in branch.leds:
+            current = branch.current_A.get(led.name)
+            if current is None:
+                continue
+            i = worst_low(current)
+            if current[i] < led.visible_current_A:
+                yield _finding(design, branch, pump, led, current, i)
+
+
+def _finding(design, branch, pump, led, current, i):
+    result = branch.pump_region.result
+    return finding(led.element,
+                   f"{led.name} gets {format_quantity(float(current[i]), 'A')} on average from pump "
+                   f"{pump.id} at the low corner, below its visible "
+                   f"{format_quantity(led.visible_current_A, 'A')} (the pump gives "
+                   f"{float(result.average_V[i]):.2f} V on average, {float(result.peak_V[i]):.2f} V at peak)",
+                   elements=[e.name for e in pump.elements] + [led.name], nets=[pump.output_net],
+                   corner=corner(design, i),
+                   values={"current_A": float(current[i]), "visible_current_A": led.visible_current_A,
+                           "average_V": float(result.average_V[i]), "peak_V": float(result.peak_V[i])},
+                   fix=_fix(design, pump, led), caution=branch_cautions(design, branch))
 
 
 def _lights(design, pump, led, **changes):
@@ -63,7 +68,7 @@ def _lights(design, pump, led, **changes):
         r = rerun_pump(design, pump, steady=True, **changes)
     except Exception:
         return None
-    return float(np.min(r.load_average_A))
+    return float(np.min(r.diode_average_A[led.name]))
 
 
 def _lights_each(design, pump, led, variants):
@@ -74,11 +79,11 @@ def _lights_each(design, pump, led, variants):
         results = rerun_pump_variants(design, pump, variants, steady=True)
     except Exception:
         return [_lights(design, pump, led, **v) for v in variants]
-    return [float(np.min(r.load_average_A)) for r in results]
+    return [float(np.min(r.diode_average_A[led.name])) for r in results]
 
 
-# (pump cell signature, pumping capacitor, visible current, nominal temperature) -> what
-# _work_out found: it depends on nothing else.
+# (pump cell signature, the LED's place among the pump's LEDs, pumping capacitor, visible
+# current, nominal temperature) -> what _work_out found: it depends on nothing else.
 _FIXES = {}
 
 
@@ -86,7 +91,8 @@ def _fix(design, pump, led):
     """The fix's words, worked out once per distinct pump cell. Only the Schottky advice
     names parts; it is kept as the diodes' places in the pump, so that each cell's finding
     names its own."""
-    key = ((pump.region.signature, pump.capacitors[0].value, led.visible_current_A,
+    place = [l.name for l in pump.region.leds].index(led.name)
+    key = ((pump.region.signature, place, pump.capacitors[0].value, led.visible_current_A,
             float(design.corners.temperature_K[design.corners.nominal]))
            if pump.region.signature is not None else None)
     found = _FIXES.get(key) if key is not None else None

@@ -174,6 +174,8 @@ CASES = [
     (PUMPS / "doubler_pin_resistor.cir"),
     # an LED coupled through a capacitor, with a diode restoring the plate: a bootstrap
     (PUMPS / "coupled_restorer.cir"),
+    # one pump feeding two LEDs (the second is checked in test_every_led_of_a_pump_...)
+    (PUMPS / "doubler_two_leds.cir"),
     # pins toggling at 5 Hz: phases of 100 ms, some 350 times the edge's time constant, so
     # the surge, the output's peak and the LED's charge all sit in the first few percent of
     # each phase (the model's step grid once missed them: surge 25 %, peak 15 % short)
@@ -367,6 +369,33 @@ def test_bootstrap_output_is_the_lifted_node(reports):
     assert "DL" not in pump["elements"]
     # the lifted node rises above the 2.0 V rail when the pin goes high
     assert pump["peak_V"]["nominal"] > 2.0
+
+
+def test_every_led_of_a_pump_is_reported_and_matches_ngspice():
+    """A doubler feeding two white LEDs with their own resistors (47 and 150 ohm): both are
+    branches with drive pump (drc once kept only the first, as the model's load, and dropped
+    the other with a note), and each one's average current agrees with ngspice .tran (uic)
+    within 10 % (the issue's tolerance) at the nominal corner and the corners where the
+    first LED's current is least and greatest."""
+    require_ngspice()
+    path = PUMPS / "doubler_two_leds.cir"
+    design = _load(path).design
+    [branch] = [b for b in design.branches if b.drive == "pump"]
+    assert [led.name for led in branch.leds] == ["DL1", "DL2"]
+    [pump] = design.pumps
+    r, corners = pump.result, design.corners
+    first = branch.current_A["DL1"]
+    picks = {corners.nominal, int(np.argmin(first)), int(np.argmax(first))}
+    for name in ("DL1", "DL2"):
+        for i in sorted(picks):
+            periods = int(min(max(2 * float(r.cycles_to_settle[i]), 30), 160))
+            ref = ngspice_figures(corner_deck(path, design, i, name), float(corners.temperature_C[i]),
+                                  r.period_s, periods, pump.output_net, [])
+            assert _deviation(float(branch.current_A[name][i]), ref["led_A"]) <= 0.10, (name, i)
+    # the 150 ohm LED gets less than the 47 ohm one, at every corner
+    assert (branch.current_A["DL2"] < branch.current_A["DL1"]).all()
+    report = _report(path)
+    assert [b["led"] for b in report["branches"]] == ["DL1", "DL2"]
 
 
 # ---------------------------------------------------------------------------------------
