@@ -15,7 +15,9 @@ E24 resistor is checked by re-running the model, which also says what it costs t
 
 Example: a doubler lifted by a pin straight into a 10 µF capacitor: about 50 mA at start-up.
 
-Fix: an E24 (IEC 60063) series resistor on the pin, with what it costs in boost.
+Fix: an E24 (IEC 60063) series resistor on the pin (or the pin's series resistor raised to
+one), with what it costs in boost; where several pins of one pump need one, also what they
+cost together.
 
 Sources: common practice (port pins of small CMOS controllers, 20 to 25 mA absolute); the
 capacitor charging law v(t) = V(1 - exp(-t/RC)).
@@ -33,7 +35,8 @@ RULE = Rule(id="pin-overcurrent", severity="error",
 
 
 # (pump cell signature, pin index, first value tried, pin limit) -> (ohm, LED current
-# after) or None: what _search finds depends on nothing else.
+# after) or None: what _search finds depends on nothing else. And (signature, ((pin, ohm
+# added), ...), corner) -> the LED's current there with all of them (_together).
 _OUTCOMES = {}
 
 
@@ -63,27 +66,67 @@ def check(design, settings):
                       elements=sorted({e.name for b in branches for e in b.elements}), nets=[pin.net],
                       corner=corner(design, i),
                       values={"current_A": float(current[i]), "max_current_A": pin.max_current_A},
-                      fix=_fix(design, pin, pumped, float(current[i])))
+                      fix=_fix(design, pin, pumped, float(current[i]))[0])
+    regions = {}
     for pump in design.pumps:
-        result = pump.result
-        if result is None:
-            continue
-        for label in pump.pins:
-            if label not in result.startup_surge_A:
-                continue
-            pin = design.pins[label]
-            surge = result.startup_surge_A[label]
-            i = worst_high(surge)
-            if surge[i] <= pin.max_current_A:
-                continue
-            yield finding(_at(design, pin),
-                          f"pin {label} takes a start-up surge of {format_quantity(float(surge[i]), 'A')} "
-                          f"into the empty pump capacitor {pump.id}, above its "
-                          f"{format_quantity(pin.max_current_A, 'A')} limit",
-                          elements=[e.name for e in pump.elements], nets=[pin.net],
-                          corner=corner(design, i),
-                          values={"startup_surge_A": float(surge[i]), "max_current_A": pin.max_current_A},
-                          fix=_fix(design, pin, fed.get(id(pump.region), []), float(surge[i]), surge=True))
+        if pump.result is not None:
+            regions.setdefault(id(pump.region), []).append(pump)
+    for pumps in regions.values():
+        found, added = [], {}
+        for pump in pumps:
+            result = pump.result
+            for label in pump.pins:
+                if label not in result.startup_surge_A or label in added:
+                    continue
+                pin = design.pins[label]
+                surge = result.startup_surge_A[label]
+                i = worst_high(surge)
+                if surge[i] <= pin.max_current_A:
+                    continue
+                fix, ohm = _fix(design, pin, fed.get(id(pump.region), []), float(surge[i]), surge=True)
+                if ohm is not None:
+                    added[label] = ohm
+                found.append(finding(
+                    _at(design, pin),
+                    f"pin {label} takes a start-up surge of {format_quantity(float(surge[i]), 'A')} "
+                    f"into the empty pump capacitor {pump.id}, above its "
+                    f"{format_quantity(pin.max_current_A, 'A')} limit",
+                    elements=[e.name for e in pump.elements], nets=[pin.net], corner=corner(design, i),
+                    values={"startup_surge_A": float(surge[i]), "max_current_A": pin.max_current_A},
+                    fix=fix))
+        together = _together(design, pumps[0], fed.get(id(pumps[0].region), []), added)
+        for f in found:
+            if together and f.fix:
+                f.fix += together
+            yield f
+
+
+def _together(design, pump, pumped, added):
+    """Where the surge fixes of several pins of one pump region would all be made, what
+    they cost the LED together (each fix's own cost is with its resistor alone): words to
+    add to each of those fixes, or ''."""
+    if len(added) < 2 or not pumped:
+        return ""
+    region = pump.region
+    led = region.leds[0]
+    before = pumped[0].current_A[led.name]
+    low = worst_low(before)
+    key = ((region.signature, tuple(sorted(added.items())), low)
+           if region.signature is not None else None)
+    if key is not None and key in _OUTCOMES:
+        after = _OUTCOMES[key]
+    else:
+        try:
+            after = float(rerun_pump(design, pump, series_ohm=added).diode_average_A[led.name][low])
+        except Exception:
+            after = None
+        if key is not None:
+            _OUTCOMES[key] = after
+    if after is None:
+        return ""
+    cost = 100.0 * (1 - after / float(before[low])) if before[low] > 0 else 0.0
+    return (f"; with the fixes on {' and '.join(sorted(added))} made together, {led.name} gets "
+            f"{format_quantity(after, 'A')} at the low corner ({cost:.0f} % less)")
 
 
 def _at(design, pin):
@@ -99,18 +142,21 @@ def _phase_words(branch, label, i):
 
 
 def _fix(design, pin, pumped, current, surge=False):
+    """The fix's words, and the ohms the model re-run added on the pin (None: no re-run
+    found a value)."""
     drive_V = float(np.max(pin.high_V)) if np.size(pin.high_V) else 0.0
     pump = pumped[0].pump_region.pumps[0] if pumped else None
     # a pump lifted through a series resistor already: the fix is that resistor's new value
-    present = pump.pin_resistors.get(pin.label) if pump is not None else None
+    present = next((p.pin_resistors[pin.label] for p in pumped[0].pump_region.pumps
+                    if pin.label in p.pin_resistors), None) if pumped else None
     present_ohm = (present.value or 0.0) if present is not None else 0.0
     extra = drive_V / pin.max_current_A - pin.output_resistance_ohm if drive_V > 0 else 0.0
     if extra <= present_ohm:
-        return f"add a series resistor on {pin.label}, or move a branch to another pin"
+        return f"add a series resistor on {pin.label}, or move a branch to another pin", None
     value = preferred.at_or_above(extra, "E24")
     if not pumped:
         return (f"add at least {format_resistance(value)} (E24, IEC 60063) in series on {pin.label}, "
-                "then check the LEDs' headroom again")
+                "then check the LEDs' headroom again"), None
     branch = pumped[0]
     region = branch.pump_region
     led = region.leds[0]
@@ -133,13 +179,14 @@ def _fix(design, pin, pumped, current, surge=False):
         return f"add {format_resistance(ohm)}{e24} in series on {pin.label}"
     if outcome is None:
         return (f"{change(value, ' or more')}; re-run the check with it, as it costs the pump "
-                "some boost")
+                "some boost"), None
     value, after = outcome
     cost = 100.0 * (1 - after / float(before[low])) if before[low] > 0 else 0.0
     return (f"{change(value)}: the model "
             f"re-run keeps it under {format_quantity(pin.max_current_A, 'A')}, and it costs "
             f"{led.name} {cost:.0f} % of its average current at the low corner "
-            f"({format_quantity(float(before[low]), 'A')} to {format_quantity(after, 'A')})")
+            f"({format_quantity(float(before[low]), 'A')} to {format_quantity(after, 'A')})"), \
+        value - present_ohm
 
 
 def _search(design, pin, pump, value, low, present_ohm=0.0):
