@@ -1,7 +1,8 @@
 """What it finds: an LED branch that drc found but could not work out, so no other rule
 checked it: a pump lifted by pins at different frequencies, an LED fed through a capacitor
-in no pump drc recognises, a capacitor that smooths a toggling pin's drive (an RC filter
-into an LED from a PWM pin), a string whose ends are neither a rail, a port pin nor ground,
+in no pump drc recognises, a capacitor or inductor that smooths a toggling pin's drive (an
+RC filter into an LED from a PWM pin, a choke in its string: a time constant over 2 % of
+the pin's shorter phase), a string whose ends are neither a rail, a port pin nor ground,
 a circuit the pump model could not solve.
 
 Why it matters: a report with no errors reads as "this design is fine". For a branch drc
