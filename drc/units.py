@@ -54,7 +54,9 @@ def format_si(value: float, unit: str, digits: int = 3) -> str:
 
 
 def _decimals(x: float, digits: int) -> int:
-    a = abs(x)
+    # the magnitude as it prints to `digits` figures: 1e-7 F is 99.99999999999999 nF, which
+    # is "100 nF", not "100.0 nF"
+    a = float(f"{abs(x):.{max(digits, 1)}g}")
     if a >= 100:
         return max(digits - 3, 0)
     if a >= 10:

@@ -114,9 +114,12 @@ def _work_out(design, pump, led):
     tried = []
     present = pump.capacitors[0].value
     larger = [v for v in preferred.values_between(present * 1.5, present * 10.5, "E6")][:4]
-    # every capacitor value in one run of the model (the capacitors are values per corner)
+    # every pumping capacitor of that value in the region (cells side by side take the
+    # same part), every candidate value in one run of the model (the capacitors are
+    # values per corner)
+    alike = [c for p in pump.region.pumps for c in p.capacitors if c.value == present]
     lows = _lights_each(design, pump, led, [{"capacitor_scale": {c.key: value / present
-                                                                for c in pump.capacitors}}
+                                                                for c in alike}}
                                             for value in larger])
     for value, low in zip(larger, lows):
         tried.append(f"{format_quantity(value, 'F')} pumping capacitor: {format_quantity(low or 0, 'A')}")

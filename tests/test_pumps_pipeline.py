@@ -176,6 +176,8 @@ CASES = [
     (PUMPS / "coupled_restorer.cir"),
     # one pump feeding two LEDs (the second is checked in test_every_led_of_a_pump_...)
     (PUMPS / "doubler_two_leds.cir"),
+    # two cells too small to light the LED (their capacitor fix is checked below)
+    (PUMPS / "twin_doubler_small.cir"),
     # a rail-fed LED whose anode a pin kicks through a capacitor: a bootstrap whose LED
     # current decays within each phase (the model's graded grid once crossed it: 6 to 8 %)
     (PUMPS / "rail_led_kicked.cir"),
@@ -439,6 +441,35 @@ def test_surge_fixes_of_two_pins_state_their_cost_together(tmp_path):
     # and far from what one resistor alone leaves (the fix's first figure)
     alone_A = float(re.search(r"to ([\d.]+) µA\)", surges[0]["fix"]).group(1)) * 1e-6
     assert _deviation(alone_A, ref["led_A"]) > 0.10
+
+
+def test_capacitor_fix_of_two_cells_changes_both(tmp_path):
+    """twin_doubler_small: two doubler cells of 100 nF fall short of 0.3 mA. The fix names
+    one value for the cells' pumping capacitors (it once scaled the first cell's alone, and
+    asked for 330 nF); with both at that value, ngspice .tran (uic) at the low corner the
+    fix names gives the LED its visible current, and drc's figure within 10 %."""
+    require_ngspice()
+    from drc.engine import run_check
+    path = PUMPS / "twin_doubler_small.cir"
+    report, _, _ = run_check([str(path)], None, [])
+    [f] = [f for f in report["findings"] if f["rule"] == "boost-inadequate"]
+    m = re.search(r"a (\d+) nF pumping capacitor \(E6, IEC 60063\) in place of 100 nF gives "
+                  r"([\d.]+) µA at the low corner", f["fix"])
+    assert m, f["fix"]
+    value, stated_A = m.group(1), float(m.group(2)) * 1e-6
+    (tmp_path / "parts.lib").write_text((PUMPS / "parts.lib").read_text())
+    fixed = tmp_path / "twin_doubler_small.cir"
+    fixed.write_text(path.read_text().replace("0.1u", f"{value}n"))
+    (tmp_path / "twin_doubler_small.toml").write_text(path.with_suffix(".toml").read_text())
+    design = _load(fixed).design
+    low = int(np.argmin(_load(path).design.branches[0].current_A["DL"]))
+    pump = design.pumps[0]
+    r = pump.result
+    periods = int(min(max(2 * float(r.cycles_to_settle[low]), 30), 160))
+    ref = ngspice_figures(corner_deck(fixed, design, low, "DL"), float(design.corners.temperature_C[low]),
+                          r.period_s, periods, pump.output_net, [])
+    assert ref["led_A"] >= 0.3e-3, ref["led_A"]
+    assert _deviation(stated_A, ref["led_A"]) <= 0.10
 
 
 # ---------------------------------------------------------------------------------------

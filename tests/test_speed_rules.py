@@ -128,3 +128,17 @@ def test_format_quantity_is_format_si():
         for unit in ("A", "V", "F"):
             assert format_quantity(value, unit) == format_si(value, unit)
             assert format_quantity(value, unit, 4) == format_si(value, unit, 4)
+
+
+@pytest.mark.parametrize("value,unit,text", [
+    (1e-7, "F", "100 nF"),           # 99.99999999999999 nF in floating point
+    (2.2e-7, "F", "220 nF"),
+    (9.996e-6, "F", "10.0 µF"),      # rounds up into the next decade's figures
+    (1e-5, "F", "10.0 µF"),
+    (4.7e-6, "F", "4.70 µF"),
+    (0.1e-3, "A", "100 µA"),
+])
+def test_three_figures_counted_as_printed(value, unit, text):
+    # three significant figures whatever the float's last bits (common practice in
+    # engineering notation; the report's own convention)
+    assert format_si(value, unit) == text
