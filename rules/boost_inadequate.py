@@ -103,9 +103,16 @@ def _fix(design, pump, led):
     if isinstance(found, str):
         return found
     places, low = found
-    diodes = [pump.charge_diode] + pump.transfer_diodes
-    return (f"Schottky diodes (about 0.3 V at 1 mA) for {', '.join(diodes[k].name for k in places)} "
+    names = [d.name for place, d in _pump_diodes(pump.region) if place in places]
+    return (f"Schottky diodes (about 0.3 V at 1 mA) for {', '.join(names)} "
             f"give {format_quantity(low, 'A')} at the low corner (the model re-run)")
+
+
+def _pump_diodes(region):
+    """Every pump's charge and transfer diodes in the region, each with its place (the
+    pump's and the diode's index): cells side by side take the same diode."""
+    return [((j, k), d) for j, p in enumerate(region.pumps)
+            for k, d in enumerate([p.charge_diode] + p.transfer_diodes) if d is not None]
 
 
 def _work_out(design, pump, led):
@@ -136,13 +143,11 @@ def _work_out(design, pump, led):
                 return (f"toggling the pins at {frequency * scale:g} Hz in place of {frequency:g} Hz "
                         f"(phases of {0.5e3 / (frequency * scale):g} ms) gives {format_quantity(low, 'A')} "
                         "at the low corner (the model re-run); check flicker and the pins' surge again")
-    diodes = [pump.charge_diode] + pump.transfer_diodes
-    silicon = [k for k, d in enumerate(diodes) if d is not None and not is_schottky(design, d)]
+    silicon = [(place, d) for place, d in _pump_diodes(pump.region) if not is_schottky(design, d)]
     if silicon:
-        low = _lights(design, pump, led,
-                      diode_override={diodes[k].key: schottky_params() for k in silicon})
+        low = _lights(design, pump, led, diode_override={d.key: schottky_params() for _, d in silicon})
         tried.append(f"Schottky diodes: {format_quantity(low or 0, 'A')}")
         if low is not None and low >= led.visible_current_A:
-            return silicon, low            # the places of the diodes to change (see _fix)
+            return [place for place, _ in silicon], low    # the diodes' places (see _fix)
     return ("no change the model tried lights it at every corner ("
             + "; ".join(tried) + "): choose a lower-voltage colour, or a regulated boost converter")

@@ -178,6 +178,8 @@ CASES = [
     (PUMPS / "doubler_two_leds.cir"),
     # two cells too small to light the LED (their capacitor fix is checked below)
     (PUMPS / "twin_doubler_small.cir"),
+    # two cells whose silicon diodes drop too much (their Schottky fix is checked below)
+    (PUMPS / "twin_doubler_silicon.cir"),
     # a rail-fed LED whose anode a pin kicks through a capacitor: a bootstrap whose LED
     # current decays within each phase (the model's graded grid once crossed it: 6 to 8 %)
     (PUMPS / "rail_led_kicked.cir"),
@@ -470,6 +472,42 @@ def test_capacitor_fix_of_two_cells_changes_both(tmp_path):
                           r.period_s, periods, pump.output_net, [])
     assert ref["led_A"] >= 0.3e-3, ref["led_A"]
     assert _deviation(stated_A, ref["led_A"]) <= 0.10
+
+
+def test_schottky_fix_of_two_cells_changes_all_four_diodes(tmp_path):
+    """twin_doubler_silicon: two silicon-diode doubler cells on 1.8 V leave the white LED
+    dark at the low corner. The fix names every charge and transfer diode of both cells
+    (it once named the first cell's two alone); with all four replaced by the part it
+    describes (drc.advice.SCHOTTKY_SUGGESTION's parameters), ngspice .tran (uic) at the
+    low corner lights the LED, and drc's figure is within 10 %."""
+    require_ngspice()
+    from drc.advice import SCHOTTKY_SUGGESTION
+    from drc.engine import run_check
+    path = PUMPS / "twin_doubler_silicon.cir"
+    report, _, _ = run_check([str(path)], None, [])
+    [f] = [f for f in report["findings"] if f["rule"] == "boost-inadequate"]
+    m = re.search(r"Schottky diodes \(about 0.3 V at 1 mA\) for (.*) give ([\d.]+) µA at the low corner",
+                  f["fix"].replace("\n", " "))
+    assert m, f["fix"]
+    assert sorted(m.group(1).split(", ")) == ["DCA", "DCB", "DTA", "DTB"]
+    stated_A = float(m.group(2)) * 1e-6
+    p = SCHOTTKY_SUGGESTION
+    model = (f".model SUGGESTED D(IS={p['IS']!r} N={p['N']!r} RS={p['RS']!r} "
+             f"XTI={p['XTI']!r} EG={p['EG']!r})")
+    (tmp_path / "parts.lib").write_text((PUMPS / "parts.lib").read_text() + model + "\n")
+    fixed = tmp_path / "twin_doubler_silicon.cir"
+    fixed.write_text(re.sub(r"(?m)^(D[CT][AB] \S+ \S+) SIL$", r"\1 SUGGESTED", path.read_text()))
+    assert fixed.read_text().count("SUGGESTED") == 4
+    (tmp_path / "twin_doubler_silicon.toml").write_text(path.with_suffix(".toml").read_text())
+    design = _load(fixed).design
+    low = int(np.argmin(_load(path).design.branches[0].current_A["DL"]))
+    pump = design.pumps[0]
+    r = pump.result
+    periods = int(min(max(2 * float(r.cycles_to_settle[low]), 30), 160))
+    ref = ngspice_figures(corner_deck(fixed, design, low, "DL"), float(design.corners.temperature_C[low]),
+                          r.period_s, periods, pump.output_net, [])
+    assert ref["led_A"] >= 0.3e-3, ref["led_A"]
+    assert _deviation(stated_A, ref["led_A"]) <= 0.10, (stated_A, ref["led_A"])
 
 
 # ---------------------------------------------------------------------------------------
