@@ -405,6 +405,27 @@ def test_every_led_of_a_pump_is_reported_and_matches_ngspice():
     assert [b["led"] for b in report["branches"]] == ["DL1", "DL2"]
 
 
+def _fixed_led_in_ngspice(tmp_path, original: Path, text: str, led: str,
+                          libraries: dict[str, str]) -> float:
+    """ngspice .tran (uic) of `text`, the netlist `original` with a fix made in it (its
+    config beside it, `libraries` written at their relative paths): the LED's average
+    current at the corner where drc finds `led` least lit in `original`, the low corner
+    the fix speaks of."""
+    for name, library in libraries.items():
+        (tmp_path / name).parent.mkdir(parents=True, exist_ok=True)
+        (tmp_path / name).write_text(library)
+    fixed = tmp_path / original.name
+    fixed.write_text(text)
+    (tmp_path / original.with_suffix(".toml").name).write_text(original.with_suffix(".toml").read_text())
+    design = _load(fixed).design
+    low = int(np.argmin(_load(original).design.branches[0].current_A[led]))
+    pump = design.pumps[0]
+    r = pump.result
+    periods = int(min(max(2 * float(r.cycles_to_settle[low]), 30), 160))
+    return ngspice_figures(corner_deck(fixed, design, low, led), float(design.corners.temperature_C[low]),
+                           r.period_s, periods, pump.output_net, [])["led_A"]
+
+
 def test_surge_fixes_of_two_pins_state_their_cost_together(tmp_path):
     """pump_sensor_1v8: each pin's surge fix (an E24 resistor) states its cost alone and,
     as both pins need one, their cost together. That figure against ngspice .tran (uic) of
@@ -425,24 +446,12 @@ def test_surge_fixes_of_two_pins_state_their_cost_together(tmp_path):
         together_A = float(m.group(2)) * 1e-6
     text = sample.read_text().replace("CPA pa xa 10u", f"RSA pa pra {ohms[0]}\nCPA pra xa 10u") \
         .replace("CPB pb xb 10u", f"RSB pb prb {ohms[1]}\nCPB prb xb 10u")
-    (tmp_path / "models").mkdir()
-    (tmp_path / "models" / "indicators.lib").write_text((SAMPLES / "models" / "indicators.lib").read_text())
-    fixed = tmp_path / "pump_sensor_1v8.cir"
-    fixed.write_text(text)
-    (tmp_path / "pump_sensor_1v8.toml").write_text(sample.with_suffix(".toml").read_text())
-    design = _load(fixed).design
-    [branch] = [b for b in design.branches if b.drive == "pump"]
-    low = int(np.argmin(_load(sample).design.branches[0].current_A["DLED"]))
-    pump = design.pumps[0]
-    r = pump.result
-    periods = int(min(max(2 * float(r.cycles_to_settle[low]), 30), 160))
-    ref = ngspice_figures(corner_deck(fixed, design, low, "DLED"),
-                          float(design.corners.temperature_C[low]), r.period_s, periods,
-                          pump.output_net, [])
-    assert _deviation(together_A, ref["led_A"]) <= 0.10, (together_A, ref["led_A"])
+    reference = _fixed_led_in_ngspice(tmp_path, sample, text, "DLED", {
+        "models/indicators.lib": (SAMPLES / "models" / "indicators.lib").read_text()})
+    assert _deviation(together_A, reference) <= 0.10, (together_A, reference)
     # and far from what one resistor alone leaves (the fix's first figure)
     alone_A = float(re.search(r"to ([\d.]+) µA\)", surges[0]["fix"]).group(1)) * 1e-6
-    assert _deviation(alone_A, ref["led_A"]) > 0.10
+    assert _deviation(alone_A, reference) > 0.10
 
 
 def test_capacitor_fix_of_two_cells_changes_both(tmp_path):
@@ -459,19 +468,10 @@ def test_capacitor_fix_of_two_cells_changes_both(tmp_path):
                   r"([\d.]+) µA at the low corner", f["fix"])
     assert m, f["fix"]
     value, stated_A = m.group(1), float(m.group(2)) * 1e-6
-    (tmp_path / "parts.lib").write_text((PUMPS / "parts.lib").read_text())
-    fixed = tmp_path / "twin_doubler_small.cir"
-    fixed.write_text(path.read_text().replace("0.1u", f"{value}n"))
-    (tmp_path / "twin_doubler_small.toml").write_text(path.with_suffix(".toml").read_text())
-    design = _load(fixed).design
-    low = int(np.argmin(_load(path).design.branches[0].current_A["DL"]))
-    pump = design.pumps[0]
-    r = pump.result
-    periods = int(min(max(2 * float(r.cycles_to_settle[low]), 30), 160))
-    ref = ngspice_figures(corner_deck(fixed, design, low, "DL"), float(design.corners.temperature_C[low]),
-                          r.period_s, periods, pump.output_net, [])
-    assert ref["led_A"] >= 0.3e-3, ref["led_A"]
-    assert _deviation(stated_A, ref["led_A"]) <= 0.10
+    reference = _fixed_led_in_ngspice(tmp_path, path, path.read_text().replace("0.1u", f"{value}n"),
+                                      "DL", {"parts.lib": (PUMPS / "parts.lib").read_text()})
+    assert reference >= 0.3e-3, reference
+    assert _deviation(stated_A, reference) <= 0.10
 
 
 def test_schottky_fix_of_two_cells_changes_all_four_diodes(tmp_path):
@@ -494,20 +494,12 @@ def test_schottky_fix_of_two_cells_changes_all_four_diodes(tmp_path):
     p = SCHOTTKY_SUGGESTION
     model = (f".model SUGGESTED D(IS={p['IS']!r} N={p['N']!r} RS={p['RS']!r} "
              f"XTI={p['XTI']!r} EG={p['EG']!r})")
-    (tmp_path / "parts.lib").write_text((PUMPS / "parts.lib").read_text() + model + "\n")
-    fixed = tmp_path / "twin_doubler_silicon.cir"
-    fixed.write_text(re.sub(r"(?m)^(D[CT][AB] \S+ \S+) SIL$", r"\1 SUGGESTED", path.read_text()))
-    assert fixed.read_text().count("SUGGESTED") == 4
-    (tmp_path / "twin_doubler_silicon.toml").write_text(path.with_suffix(".toml").read_text())
-    design = _load(fixed).design
-    low = int(np.argmin(_load(path).design.branches[0].current_A["DL"]))
-    pump = design.pumps[0]
-    r = pump.result
-    periods = int(min(max(2 * float(r.cycles_to_settle[low]), 30), 160))
-    ref = ngspice_figures(corner_deck(fixed, design, low, "DL"), float(design.corners.temperature_C[low]),
-                          r.period_s, periods, pump.output_net, [])
-    assert ref["led_A"] >= 0.3e-3, ref["led_A"]
-    assert _deviation(stated_A, ref["led_A"]) <= 0.10, (stated_A, ref["led_A"])
+    text = re.sub(r"(?m)^(D[CT][AB] \S+ \S+) SIL$", r"\1 SUGGESTED", path.read_text())
+    assert text.count("SUGGESTED") == 4
+    reference = _fixed_led_in_ngspice(tmp_path, path, text, "DL",
+                                      {"parts.lib": (PUMPS / "parts.lib").read_text() + model + "\n"})
+    assert reference >= 0.3e-3, reference
+    assert _deviation(stated_A, reference) <= 0.10, (stated_A, reference)
 
 
 # ---------------------------------------------------------------------------------------
