@@ -588,6 +588,11 @@ class _Flattener:
                 if value_field is None:
                     raise InputError(location, f"{head_text} has no value")
                 value = ex.element_value(value_field, params, name, letter)
+                if value < 0:
+                    # a SPICE simulator takes it (as a modelling device); no part is one
+                    raise InputError(value_field.location if type(value_field) in (Word, Expr)
+                                     else location, f"{head_text}'s value must not be negative, "
+                                     f"got {value:g}")
                 value_text = value_field.text if type(value_field) in (Word, Expr) else None
                 params_of = self._assigns(assigns, params) if assigns else {}
             elif letter == "D":

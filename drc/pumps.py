@@ -195,8 +195,8 @@ def network_of(region: PumpRegion, corners, diode_params, series_ohm: dict[str, 
     resistors, capacitors, diodes = [], [], []
     for e in region.elements:
         a, b = e.nodes
-        if e.kind == "R":
-            resistors.append((a, b, (e.value or 0.0) * corners.resistor_factor))
+        if e.kind == "R":      # a 0 ohm link is a wire
+            resistors.append((a, b, max(e.value or 0.0, WIRE_OHM) * corners.resistor_factor))
         elif e.kind in "LV":
             resistors.append((a, b, WIRE_OHM))
         elif e.kind == "C":

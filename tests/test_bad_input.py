@@ -43,6 +43,7 @@ CASES = {
     "syntax_equals.cir": ("syntax_equals.cir", "R1 ", "=", "'=' with no value"),
     "recursive_subckt.cir": ("recursive_subckt.cir", "XL ", None, "subcircuit recursion: loop -> loop"),
     "include_cycle.cir": ("cycle_b.inc", ".include", "include_cycle", "include cycle"),
+    "negative_value.cir": ("negative_value.cir", "R1 ", "-100", "R1's value must not be negative, got -100"),
 }
 
 

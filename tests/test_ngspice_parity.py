@@ -38,6 +38,8 @@ DIFFER = {
     # drc refuses a two-terminal element with one node; ngspice 39 loads it (checked by hand:
     # it warns that the resistance is too low and runs)
     "tests/netlists/bad/too_few_nodes.cir": "ngspice only: R with one node",
+    # drc refuses a negative R, C or L (no part is one); ngspice takes it as a modelling device
+    "tests/netlists/bad/negative_value.cir": "ngspice only: negative resistance",
     # drc refuses an unclosed '('; ngspice 39 reads PULSE(... to the end of the card
     "tests/netlists/bad/unclosed_paren.cir": "ngspice only: unclosed parenthesis",
 }

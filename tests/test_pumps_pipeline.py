@@ -170,8 +170,10 @@ CASES = [
     (PUMPS / "bootstrap.cir"),
     (PUMPS / "doubler_small_cap.cir"),
     (PUMPS / "twin_doubler_1v8.cir"),
-    # the pin lifts the pumping capacitor through a series resistor (pin-overcurrent's fix)
+    # the pin lifts the pumping capacitor through a series resistor (pin-overcurrent's fix),
+    # and the same with a 0 ohm link in its place (the model once divided by its zero)
     (PUMPS / "doubler_pin_resistor.cir"),
+    (PUMPS / "doubler_pin_link.cir"),
     # an LED coupled through a capacitor, with a diode restoring the plate: a bootstrap
     (PUMPS / "coupled_restorer.cir"),
     # one pump feeding two LEDs (the second is checked in test_every_led_of_a_pump_...)
