@@ -668,13 +668,21 @@ def _pulse_pin(e: Element, spec: PinSpec | None, supplies: dict[str, Supply],
                         f"down, {100 * (rise + fall) * frequency:.0f} % of the period, taken as "
                         "steps at their middles: the current of an LED they drive is not "
                         "followed along the edges", e.name)
+    if low != 0:
+        assumptions.add(f"PULSE low level {low:g} V taken as 0 V: a port pin drives low to ground",
+                        e.name)
     profile = profiles.pin_default()
     supply = spec.supply if spec is not None else None
     if supply is None:
         if len(supplies) == 1:
-            supply = next(iter(supplies))
+            only = next(iter(supplies.values()))
+            supply = only.label
+            differs = abs(only.nominal_V - high) > 0.05 * max(high, 1e-9)
             assumptions.add(f"a PULSE source with no [pin] table: a toggling port pin powered by "
-                            f"{supply}, built-in pin profile ({profile.output_resistance_ohm:g} Ω, "
+                            f"{supply}"
+                            + (f", the only supply (its PULSE level {high:g} V is not {supply}'s "
+                               f"{only.nominal_V:g} V: the pin is taken at {supply}'s)" if differs else "")
+                            + f", built-in pin profile ({profile.output_resistance_ohm:g} Ω, "
                             f"{profile.max_current_A * 1e3:g} mA; from memory)", e.name)
         else:
             match = [s.label for s in (candidates if candidates is not None else supplies.values())

@@ -177,7 +177,14 @@ class _Expander:
             else:
                 self.dot_cards.append((key, card.location))
         if skipping_section is not None:
-            raise InputError(skipping_section.location, "library section with no '.endl'")
+            name = _text(skipping_section.fields[0])
+            hint = ""
+            if "/" in name or "\\" in name or "." in name:
+                # LTspice and some exporters write `.lib FILE` for a whole file
+                hint = (f"; to read the whole file {name}, write '.include {name}' (a '.lib' that "
+                        "reads a file names a section of it too: '.lib FILE SECTION')")
+            raise InputError(skipping_section.location,
+                             f"library section '{name}' with no '.endl'{hint}")
         return scope
 
     def _open_subckt(self, card: DotCard, scope: Scope, open_subckts) -> Scope:

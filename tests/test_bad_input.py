@@ -43,6 +43,8 @@ CASES = {
     "syntax_equals.cir": ("syntax_equals.cir", "R1 ", "=", "'=' with no value"),
     "recursive_subckt.cir": ("recursive_subckt.cir", "XL ", None, "subcircuit recursion: loop -> loop"),
     "include_cycle.cir": ("cycle_b.inc", ".include", "include_cycle", "include cycle"),
+    "lib_without_section.cir": ("lib_without_section.cir", ".lib", None,
+                                "to read the whole file models/night.lib, write '.include models/night.lib'"),
     "negative_value.cir": ("negative_value.cir", "R1 ", "-100", "R1's value must not be negative, got -100"),
 }
 

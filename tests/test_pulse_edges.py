@@ -61,3 +61,32 @@ def test_slow_edges_are_said_to_be_steps_and_are_off():
     assert drc == pytest.approx(_report("pulse_pin")["branches"][0]["current_A"]["nominal"])
     # ngspice follows the LED along the edges: more than 5 % away
     assert abs(drc / _ngspice_average("pulse_slow_edges") - 1) > 0.05
+
+
+# A PULSE's levels as a pin drive: the low level is taken as ground and the high level as
+# the pin's supply; where the PULSE says otherwise, the report says what it took.
+LEVELS = """Porch sign: a red LED on a PWM pin, the only supply 3.3 V
+.model LRED D(IS=1e-19 N=1.8 RS=3 EG=2.0 XTI=3)
+VDD vdd 0 DC 3.3
+VP p 0 PULSE({low} {high} 0 10n 10n 0.5m 1m)
+R1 p a 150
+DR a vdd_ret LRED
+RRET vdd_ret 0 1m
+.end
+"""
+
+
+@pytest.mark.parametrize("low,high,said", [
+    ("0", "3.3", None),
+    ("1", "3.3", "VP: PULSE low level 1 V taken as 0 V"),
+    ("0", "2.5", "its PULSE level 2.5 V is not VDD's 3.3 V: the pin is taken at VDD's"),
+])
+def test_pulse_levels_that_are_not_ground_and_the_supply_are_said(tmp_path, low, high, said):
+    path = tmp_path / "levels.cir"
+    path.write_text(LEVELS.format(low=low, high=high))
+    report, _, _ = run_check([str(path)], None, [])
+    lines = [a for a in report["assumptions"] if a.startswith("VP:")]
+    if said is None:
+        assert not any("low level" in a or "is not VDD" in a for a in lines), lines
+    else:
+        assert any(said in a for a in lines), lines
