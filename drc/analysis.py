@@ -916,9 +916,17 @@ def _trace_branches(flat, terminals, supplies, pins, leds, corners, notes) -> li
                             nets.add(n)
                             todo.append(n)
                 elif problem is None:
-                    what = ("a black-box part" if e.kind == "X" else
-                            f"{'an' if e.kind in 'AEFHILMNORSX' else 'a'} {e.kind} element")
-                    problem = f"{start.name}'s circuit reaches {what}, {e.name}, which drc cannot solve"
+                    waveform = e.source.waveform.kind.upper() if (
+                        e.kind in "VI" and e.source is not None and e.source.waveform is not None) else None
+                    if waveform is not None:
+                        # a source with a waveform drc does not drive a branch with (PWL, SIN, ...)
+                        problem = (f"{start.name}'s circuit reaches {e.name}, a {waveform} source, which "
+                                   "drc solves neither as a rail nor as a pin: give it a [supply] "
+                                   "table with its range, or make it DC or PULSE")
+                    else:
+                        what = ("a black-box part" if e.kind == "X" else
+                                f"{'an' if e.kind in 'AEFHILMNORSX' else 'a'} {e.kind} element")
+                        problem = f"{start.name}'s circuit reaches {what}, {e.name}, which drc cannot solve"
         return nets, list(elements.values()), problem
 
     for key, led in leds.items():

@@ -2,7 +2,8 @@
 over in silence. Scenarios of our own (tests/netlists/unchecked/): a doubler whose pins run
 on two clocks, an LED fed from a pin through a divider and a capacitor (no pump), two LEDs
 between pins of a controller kept as a black-box part with no [pin] table, a PWM pin into
-an RC filter that feeds an LED, a PWM pin into a choke in an LED's string.
+an RC filter that feeds an LED, a PWM pin into a choke in an LED's string, an LED on a
+PWL source.
 
 Against ngspice .tran: the capacitor-fed LED does carry current, so the DC answer drc once
 gave it (0 A, and a led-headroom error saying so) was wrong; the filtered LED carries a
@@ -37,6 +38,7 @@ CASES = {
     "controller_unset": (["D1", "D2"], "black-box part, XU1"),
     "pwm_filtered": (["DR"], "smooths the drive"),
     "pwm_choke": (["DR"], "L1's time constant"),
+    "pwl_source": (["D1"], "V1, a PWL source"),
 }
 
 
