@@ -72,28 +72,34 @@ def check(design, settings):
         if pump.result is not None:
             regions.setdefault(id(pump.region), []).append(pump)
     for pumps in regions.values():
-        found, added = [], {}
+        # the region's pumps share one result: a pin that lifts two of them surges once
+        lifts = {}
         for pump in pumps:
-            result = pump.result
             for label in pump.pins:
-                if label not in result.startup_surge_A or label in added:
-                    continue
-                pin = design.pins[label]
-                surge = result.startup_surge_A[label]
-                i = worst_high(surge)
-                if surge[i] <= pin.max_current_A:
-                    continue
-                fix, ohm = _fix(design, pin, fed.get(id(pump.region), []), float(surge[i]), surge=True)
-                if ohm is not None:
-                    added[label] = ohm
-                found.append(finding(
-                    _at(design, pin),
-                    f"pin {label} takes a start-up surge of {format_quantity(float(surge[i]), 'A')} "
-                    f"into the empty pump capacitor {pump.id}, above its "
-                    f"{format_quantity(pin.max_current_A, 'A')} limit",
-                    elements=[e.name for e in pump.elements], nets=[pin.net], corner=corner(design, i),
-                    values={"startup_surge_A": float(surge[i]), "max_current_A": pin.max_current_A},
-                    fix=fix))
+                lifts.setdefault(label, []).append(pump)
+        result = pumps[0].result
+        found, added = [], {}
+        for label, lifted in lifts.items():
+            if label not in result.startup_surge_A:
+                continue
+            pin = design.pins[label]
+            surge = result.startup_surge_A[label]
+            i = worst_high(surge)
+            if surge[i] <= pin.max_current_A:
+                continue
+            fix, ohm = _fix(design, pin, fed.get(id(pumps[0].region), []), float(surge[i]), surge=True)
+            if ohm is not None:
+                added[label] = ohm
+            found.append(finding(
+                _at(design, pin),
+                f"pin {label} takes a start-up surge of {format_quantity(float(surge[i]), 'A')} "
+                f"into the empty pump capacitor{'s' if len(lifted) > 1 else ''} "
+                f"{' and '.join(p.id for p in lifted)}, above its "
+                f"{format_quantity(pin.max_current_A, 'A')} limit",
+                elements=list(dict.fromkeys(e.name for p in lifted for e in p.elements)),
+                nets=[pin.net], corner=corner(design, i),
+                values={"startup_surge_A": float(surge[i]), "max_current_A": pin.max_current_A},
+                fix=fix))
         together = _together(design, pumps[0], fed.get(id(pumps[0].region), []), added)
         for f in found:
             if together and f.fix:

@@ -89,6 +89,16 @@ def test_pin_overcurrent_fix_raises_the_pin_resistor(tmp_path):
     assert not [g for g in rules_of(fixed, "pin-overcurrent") if "surge" in g["message"]]
 
 
+def test_a_pin_lifting_two_cells_surges_once():
+    """One pin, two doubler cells, one result: one surge finding naming both capacitors and
+    their parts (it was two findings with the same figure; the figure against ngspice is
+    in tests/test_pumps_pipeline.py)."""
+    report = check(PUMPS / "one_pin_two_cells.cir")
+    [f] = [f for f in rules_of(report, "pin-overcurrent") if "surge" in f["message"]]
+    assert "capacitors CPB and CPA" in f["message"] or "capacitors CPA and CPB" in f["message"]
+    assert {"CPA", "CPB", "DCA", "DCB", "DTA", "DTB"} <= set(f["elements"])
+
+
 def test_reverse_leak_bootstrap_without_diode():
     report = check(PUMPS / "bootstrap.cir")
     assert any("no charge diode" in f["message"] for f in rules_of(report, "reverse-leak"))

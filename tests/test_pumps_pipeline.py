@@ -178,6 +178,8 @@ CASES = [
     (PUMPS / "coupled_restorer.cir"),
     # one pump feeding two LEDs (the second is checked in test_every_led_of_a_pump_...)
     (PUMPS / "doubler_two_leds.cir"),
+    # one pin lifting two cells (its surge is one finding: tests/test_pump_rules.py)
+    (PUMPS / "one_pin_two_cells.cir"),
     # two cells too small to light the LED (their capacitor fix is checked below)
     (PUMPS / "twin_doubler_small.cir"),
     # two cells whose silicon diodes drop too much (their Schottky fix is checked below)
