@@ -130,7 +130,10 @@ def classify(region_elements: list[Element], pin_nets: dict, rail_nets: dict,
             part = rail_nets.get(src) or pin_nets.get(src)
             charge_from = part.label if part is not None else None
         output = transfers[-1].nodes[1] if transfers else start
-        reservoir = next((c for c in caps if c not in chain and set(c.nodes) == {output, GROUND}), None)
+        # a reservoir: from the output to ground, or to a rail (the same to the pump's ripple)
+        reservoir = next((c for c in caps if c not in chain and output in c.nodes
+                          and (set(c.nodes) - {output}) <= ({GROUND} | set(rail_nets))
+                          and len(set(c.nodes)) == 2), None)
         if len(chain) >= 2:
             topology = "dickson"
         elif charge_diode is not None and transfers:

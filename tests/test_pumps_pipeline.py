@@ -163,6 +163,7 @@ CASES = [
     (SAMPLES / "pump_pin_charged.cir"),
     (PUMPS / "doubler_rail.cir"),
     (PUMPS / "doubler_rail_res.cir"),
+    (PUMPS / "doubler_rail_reservoir.cir"),      # the reservoir returns to the rail
     (PUMPS / "doubler_pin.cir"),
     (PUMPS / "dickson2.cir"),
     (PUMPS / "dickson3.cir"),
@@ -317,7 +318,8 @@ def _report(path: Path) -> dict:
 @pytest.fixture(scope="module")
 def reports():
     names = ["doubler_rail", "doubler_rail_res", "doubler_pin", "dickson2", "dickson3",
-             "dickson4", "bootstrap", "doubler_slow_flash", "doubler_pin_resistor"]
+             "dickson4", "bootstrap", "doubler_slow_flash", "doubler_pin_resistor",
+             "doubler_rail_reservoir"]
     with ThreadPoolExecutor(max_workers=4) as pool:
         return dict(zip(names, pool.map(lambda n: _report(PUMPS / f"{n}.cir"), names)))
 
@@ -331,6 +333,7 @@ TOPOLOGIES = [
     ("doubler_pin", "doubler", 1, ["DCH", "CP", "DTR", "CR"], "out"),
     ("doubler_slow_flash", "doubler", 1, ["DCH", "CP", "DTR", "CR"], "out"),
     ("doubler_pin_resistor", "doubler", 1, ["DCH", "CP", "DTR", "RCK"], "out"),
+    ("doubler_rail_reservoir", "doubler", 1, ["DCH", "CP", "DTR", "CR"], "out"),
     ("dickson2", "dickson", 2, ["D1", "C1", "D2", "C2", "D3", "CR"], "out"),
     ("dickson3", "dickson", 3, ["D1", "C1", "D2", "C2", "D3", "C3", "D4", "CR"], "out"),
     ("dickson4", "dickson", 4, ["D1", "C1", "D2", "C2", "D3", "C3", "D4", "C4", "D5", "CR"], "out"),
