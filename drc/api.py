@@ -253,11 +253,15 @@ class Design(Protocol):
                        per pin label; phases: [Phase(share, drive_V, words)])
     pumps              every charge pump: Pump(id, topology "doubler"|"dickson"|"bootstrap",
                        stages, capacitors, charge_diode, transfer_diodes, reservoir,
-                       output_net, pins (labels), charge_from, elements, region, result)
-                       result: PumpResult or None, arrays at every corner: peak_V, average_V,
-                       ripple_V, load_average_A, load_peak_A, time_to_visible_s; per pin
-                       label: pin_high_peak_A, pin_low_peak_A, startup_surge_A; per diode
-                       name: diode_reverse_max_V; waveform_V per net (one steady period)
+                       output_net, pins (labels), charge_from, elements, pin_resistors
+                       (pin label -> the resistor it lifts a capacitor through), region,
+                       result); the pumps of one region (its LEDs, .leds; its pumps, .pumps)
+                       share one result. result: PumpResult or None, arrays at every corner:
+                       peak_V, average_V, ripple_V, load_average_A, load_peak_A (the
+                       region's first LED), time_to_visible_s; per pin label:
+                       pin_high_peak_A, pin_low_peak_A, startup_surge_A; per diode name
+                       (every LED among them): diode_average_A, diode_peak_A,
+                       diode_reverse_max_V; waveform_V per net (one steady period)
     corners            Corners: count, nominal (index), supply_V (label -> array),
                        temperature_C, temperature_K, resistor_factor, capacitor_factor
                        (arrays); describe(i) (the report's corner dict), words(i)
