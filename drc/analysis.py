@@ -368,7 +368,6 @@ class Design:
     branches: list[Branch]
     corners: Corners
     assumptions: list[str]
-    notes: list[tuple[Location, str]]
     pumps: list = field(default_factory=list)
 
     @property
@@ -482,7 +481,6 @@ def _source_net(e: Element) -> tuple[str | None, float]:
 def analyse(flat: FlatDesign, context: Context) -> Design:
     """The analysed design: parts found, branches traced and solved at every corner."""
     assumptions = _Assumptions()
-    notes: list[tuple[Location, str]] = []
     errors: list[InputError] = []
     terminals = _terminals(flat)
 
@@ -557,10 +555,10 @@ def analyse(flat: FlatDesign, context: Context) -> Design:
                 if np.size(p.high_V) else np.zeros(corners.count)
 
     leds = _find_leds(flat, context, assumptions)
-    branches = _trace_branches(flat, terminals, supplies, pins, leds, corners, notes)
+    branches = _trace_branches(flat, terminals, supplies, pins, leds, corners)
     design = Design(path=flat.path, title=flat.title, flat=flat, context=context,
                     terminals=terminals, supplies=supplies, pins=pins, leds=leds,
-                    branches=branches, corners=corners, assumptions=[], notes=notes)
+                    branches=branches, corners=corners, assumptions=[])
     # the plain strings together (solve_strings batches their distinct solves); then the rest
     solve_strings([b for b in branches if b.phases and b.network is None and b.pump_region is None],
                   corners, flat)
@@ -852,7 +850,7 @@ def _is_wire(e: Element) -> bool:
 _STRING_SHORTCUT = True
 
 
-def _trace_branches(flat, terminals, supplies, pins, leds, corners, notes) -> list[Branch]:
+def _trace_branches(flat, terminals, supplies, pins, leds, corners) -> list[Branch]:
     rail_nets = {s.net: s for s in supplies.values()}
     pin_nets = {p.net: p for p in pins.values()}
     stops = set(rail_nets) | set(pin_nets) | {GROUND}
@@ -982,8 +980,6 @@ def _trace_branches(flat, terminals, supplies, pins, leds, corners, notes) -> li
         else:
             branch.network = _NetworkRegion(sorted(r_nets), dc_elements)
             _classify_network(branch, rail_nets, pin_nets, corners)
-        if branch.note:
-            notes.append((e.location, branch.note))
         branches.append(branch)
     return _merge_shared_pins(branches, rail_nets, pin_nets, corners, stops)
 
