@@ -40,7 +40,6 @@ Input limits are not listed there: they bound the input, not the design.
 from __future__ import annotations
 
 import difflib
-import os
 import re
 from dataclasses import dataclass, field
 from pathlib import Path

@@ -13,7 +13,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from drc.diode import DiodeParams, saturation_current, thermal_voltage
+from drc.diode import saturation_current, thermal_voltage
 
 GMIN = 1e-12           # siemens from every node to ground, as SPICE adds
 MAX_ITERATIONS = 300
@@ -75,8 +75,6 @@ def solve_network(free_nets: list[str], held: dict[str, tuple], resistors: list[
     v = np.zeros((count, n))
     for k, volts, _ in sources:
         v[:, k] = volts
-    vj_old = [np.zeros(count) for _ in junctions]
-    rows = np.arange(count)
     for iteration in range(MAX_ITERATIONS):
         jac = np.zeros((count, n, n))
         res = np.zeros((count, n))
