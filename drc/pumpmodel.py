@@ -682,17 +682,22 @@ def simulate_periodic(network: PumpNetwork, temperature_K, output_node: str, loa
         periods += 1
         residual = run["x"] - x
         err = np.abs(residual).max(axis=1)
-        settled = err < tolerance_V
-        if settled.all():
-            break
-        # a Newton update that made the mismatch much worse is halved instead (backtracking)
-        worse = (err > 2.0 * best_err) & ~settled
         try:
             step = np.linalg.solve(run["Phi"] - eye, -residual[..., None])[..., 0]
         except np.linalg.LinAlgError:
             step = residual.copy()
         bad = ~np.isfinite(step).all(axis=1)
         step[bad] = residual[bad]
+        # settled: one period repeats to within tolerance_V, and the Newton step (the state's
+        # distance from the periodic one) is within it too. Where the period map has a slow
+        # mode (a reservoir that a barely lit LED drains), a period repeats to a tenth of a
+        # millivolt while the state is still tens of millivolts short: measured against
+        # ngspice run for 8000 periods, 43 mV at a doubler's output
+        settled = (err < tolerance_V) & (np.abs(step).max(axis=1) < tolerance_V)
+        if settled.all():
+            break
+        # a Newton update that made the mismatch much worse is halved instead (backtracking)
+        worse = (err > 2.0 * best_err) & ~settled
         step = np.clip(x + step, -sys.voltage_bound[:, None], sys.voltage_bound[:, None]) - x
         step[settled] = 0.0
         step_base[worse] *= 0.5
