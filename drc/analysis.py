@@ -653,6 +653,11 @@ def _pulse_timing(e: Element) -> tuple[float, float, float, float, float, float,
     return high, low, 1.0 / per, min(max(width / per, 0.0), 1.0), start % per, tr, tf
 
 
+def _level_matches(supply: Supply, level_V: float) -> bool:
+    """A PULSE's high level is its supply's where it is within 5 % of the nominal."""
+    return abs(supply.nominal_V - level_V) <= 0.05 * max(level_V, 1e-9)
+
+
 def _pulse_pin(e: Element, spec: PinSpec | None, supplies: dict[str, Supply],
                assumptions: _Assumptions, candidates: list | None = None) -> Pin | None:
     net, sign = _source_net(e)
@@ -675,7 +680,7 @@ def _pulse_pin(e: Element, spec: PinSpec | None, supplies: dict[str, Supply],
         if len(supplies) == 1:
             only = next(iter(supplies.values()))
             supply = only.label
-            differs = abs(only.nominal_V - high) > 0.05 * max(high, 1e-9)
+            differs = not _level_matches(only, high)
             assumptions.add(f"a PULSE source with no [pin] table: a toggling port pin powered by "
                             f"{supply}"
                             + (f", the only supply (its PULSE level {high:g} V is not {supply}'s "
@@ -684,7 +689,7 @@ def _pulse_pin(e: Element, spec: PinSpec | None, supplies: dict[str, Supply],
                             f"{profile.max_current_A * 1e3:g} mA; from memory)", e.name)
         else:
             match = [s.label for s in (candidates if candidates is not None else supplies.values())
-                     if abs(s.nominal_V - high) <= 0.05 * max(high, 1e-9)]
+                     if _level_matches(s, high)]
             supply = match[0] if len(match) == 1 else None
             assumptions.add("a PULSE source with no [pin] table: a toggling port pin "
                             + (f"powered by {supply} (its level matches)" if supply else
@@ -857,7 +862,9 @@ def _trace_branches(flat, terminals, supplies, pins, leds, corners) -> list[Bran
     toggling = {n for n, p in pin_nets.items() if p.drive == "toggle"}
     lifters = _lifted_through_resistors(toggling, terminals, stops, pin_nets)
     toggling |= set(lifters)
-    lifting = {**pin_nets, **lifters} if lifters else pin_nets   # net -> the pin lifting it
+    # net -> the pin lifting it; plate net -> the resistor it is lifted through
+    lifting = {**pin_nets, **{n: pin for n, (pin, _) in lifters.items()}} if lifters else pin_nets
+    through = {n: resistor for n, (_, resistor) in lifters.items()}
     pin_labels = {p.label for p in pin_nets.values()}
     seen: set[str] = set()
     branches = []
@@ -974,7 +981,7 @@ def _trace_branches(flat, terminals, supplies, pins, leds, corners) -> list[Bran
                                "neither end is a rail, a port pin or ground")
         elif pumped and problem is None:
             _pump_branch(branch, r_nets, r_elements, region_leds, pin_nets, rail_nets, toggling,
-                         pin_labels, lifting)
+                         pin_labels, lifting, through)
         elif problem:
             branch.note = problem
         else:
@@ -1048,7 +1055,8 @@ def _lifted_through_resistors(toggling: set[str], terminals, stops, pin_nets) ->
     """Nets that a toggling pin lifts through one series resistor: the net's only other
     terminals are capacitors, so it is a pumping capacitor's plate behind a resistor that
     limits the pin's current (what pin-overcurrent's fix adds). Each such net maps to its
-    pin, which a pump there is lifted by; the model solves the resistor in the network."""
+    pin, which a pump there is lifted by, and the resistor; the model solves the resistor
+    in the network."""
     lifted = {}
     for net in toggling:
         for e, _ in terminals.get(net, ()):
@@ -1059,18 +1067,18 @@ def _lifted_through_resistors(toggling: set[str], terminals, stops, pin_nets) ->
                 continue
             others = [x for x, _ in terminals.get(plate, ()) if x.key != e.key]
             if others and all(x.kind == "C" and len(x.nodes) == 2 for x in others):
-                lifted[plate] = pin_nets[net]
+                lifted[plate] = (pin_nets[net], e)
     return lifted
 
 
 def _pump_branch(branch, r_nets, r_elements, region_leds, pin_nets, rail_nets, toggling,
-                 pin_labels, lifting) -> None:
+                 pin_labels, lifting, through) -> None:
     from drc.pumps import PumpRegion, classify
     touched = sorted({n for x in r_elements for n in x.nodes})
     region_pins = [pin_nets[n] for n in touched if n in pin_nets]
     region_rails = [rail_nets[n] for n in touched if n in rail_nets]
     region = PumpRegion(sorted(r_nets), r_elements, region_pins, region_rails, region_leds)
-    region.pumps = classify(r_elements, lifting, rail_nets, toggling, pin_labels,
+    region.pumps = classify(r_elements, lifting, rail_nets, toggling, pin_labels, through=through,
                             leds={l.element.key for l in region_leds})
     for pump in region.pumps:
         pump.region = region

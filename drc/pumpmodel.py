@@ -717,7 +717,6 @@ def simulate_periodic(network: PumpNetwork, temperature_K, output_node: str, loa
     pin_i = sys.pin_currents(V)                                             # (K, C, P)
     v_out = Vp[:, :, out]
     weights = sys.quadrature[:, None] / T
-    load_i = load_of(cur)
     high = sys.segment_high[sys.step_segment]                               # (K, P)
     pin_high, pin_low, surge = {}, {}, {}
     for k, name in enumerate(pin_names):
@@ -727,27 +726,29 @@ def simulate_periodic(network: PumpNetwork, temperature_K, output_node: str, loa
                        else np.full(C, np.nan))
     reverse = {name: (Vp[:, :, sys.diode_cathode[k]] - Vp[:, :, sys.diode_anode[k]]).max(axis=0)
                for k, name in enumerate(sys.diode_names)}
-    load_average = (load_i * weights).sum(axis=0)
+    # every diode's figures; the load's are its diode's (the same arrays)
+    diode_average = {name: (cur[:, :, k] * weights).sum(axis=0) for k, name in enumerate(sys.diode_names)}
+    diode_peak = {name: cur[:, :, k].max(axis=0) for k, name in enumerate(sys.diode_names)}
+    diode_wave = {name: np.concatenate([cur[-1:, :, k], cur[:, :, k]], 0).T
+                  for k, name in enumerate(sys.diode_names)}
+    load_average = diode_average[load_diode] if load is not None else np.zeros(C)
 
     Phi, dq = run["Phi"], run["dq"]
     steady = dict(period_s=T, peak_V=v_out.max(axis=0), average_V=(v_out * weights).sum(axis=0),
                   ripple_V=v_out.max(axis=0) - v_out.min(axis=0),
                   load_average_A=load_average if load is not None else np.full(C, np.nan),
-                  load_peak_A=load_i.max(axis=0) if load is not None else np.full(C, np.nan),
+                  load_peak_A=diode_peak[load_diode] if load is not None else np.full(C, np.nan),
                   pin_high_peak_A=pin_high, pin_low_peak_A=pin_low,
                   diode_reverse_max_V=reverse, startup_surge_A=surge, settled=settled,
-                  steady_x=x,
-                  diode_average_A={name: (cur[:, :, k] * weights).sum(axis=0)
-                                   for k, name in enumerate(sys.diode_names)},
-                  diode_peak_A={name: cur[:, :, k].max(axis=0) for k, name in enumerate(sys.diode_names)},
-                  diode_current_A={name: np.concatenate([cur[-1:, :, k], cur[:, :, k]], 0).T
-                                   for k, name in enumerate(sys.diode_names)})
+                  steady_x=x, diode_average_A=diode_average, diode_peak_A=diode_peak,
+                  diode_current_A=diode_wave)
     names = sys.node_names
     time_axis = np.concatenate([[0.0], sys.step_end_s])
     wave = {name: np.concatenate([V[-1:, :, i], V[:, :, i]], 0).T for i, name in enumerate(names)}
     steady.update(
         waveform_time_s=time_axis, waveform_V=wave,
-        load_current_A=np.concatenate([load_i[-1:], load_i], 0).T,
+        load_current_A=(diode_wave[load_diode] if load is not None
+                        else np.zeros((C, len(sys.step_end_s) + 1))),
         pin_current_A={name: np.concatenate([pin_i[-1:, :, k], pin_i[:, :, k]], 0).T
                        for k, name in enumerate(pin_names)},
         startup_time_s=startup_t,

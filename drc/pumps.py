@@ -61,11 +61,12 @@ class PumpRegion:
 
 def classify(region_elements: list[Element], pin_nets: dict, rail_nets: dict,
              toggling: set | None = None, pin_labels: set | None = None,
-             leds: set | None = None) -> list[Pump]:
+             leds: set | None = None, through: dict | None = None) -> list[Pump]:
     """The pumps among a region's elements: chains of pumping capacitors joined by diodes.
 
     pin_nets maps a net to the pin on it, and also a plate net behind one series resistor
-    from a toggling pin to that pin (such nets are in `toggling` too)."""
+    from a toggling pin to that pin (such nets are in `toggling` too); `through` maps such
+    a plate net to that resistor."""
     if toggling is None:
         toggling = {n for n, p in pin_nets.items() if p.drive == "toggle"}
     if pin_labels is None:
@@ -147,10 +148,8 @@ def classify(region_elements: list[Element], pin_nets: dict, rail_nets: dict,
             if label not in pins:
                 pins.append(label)
             plate = c.nodes[0] if c.nodes[0] in toggling else c.nodes[1]
-            pin_net = pin_nets[plate].net
-            if pin_net != plate:      # lifted through a series resistor
-                pin_resistors[label] = next(e for e in region_elements if e.kind == "R"
-                                            and set(e.nodes) == {pin_net, plate})
+            if through and plate in through:      # lifted through a series resistor
+                pin_resistors[label] = through[plate]
         if charge_from is not None and charge_from not in pins and charge_from in pin_labels:
             pins.append(charge_from)
         elements = ([charge_diode] if charge_diode else []) + [x for pair in zip(chain, transfers + [None] * len(chain))

@@ -117,22 +117,32 @@ def _together(design, pump, pumped, added):
     led = region.leds[0]
     before = pumped[0].current_A[led.name]
     low = worst_low(before)
-    key = ((region.signature, tuple(sorted(added.items())), low)
-           if region.signature is not None else None)
-    if key is not None and key in _OUTCOMES:
-        after = _OUTCOMES[key]
-    else:
+
+    def work():
         try:
-            after = float(rerun_pump(design, pump, series_ohm=added).diode_average_A[led.name][low])
+            return float(rerun_pump(design, pump, series_ohm=added).diode_average_A[led.name][low])
         except Exception:
-            after = None
-        if key is not None:
-            _OUTCOMES[key] = after
+            return None
+    after = _remembered((region.signature, tuple(sorted(added.items())), low)
+                        if region.signature is not None else None, work)
     if after is None:
         return ""
-    cost = 100.0 * (1 - after / float(before[low])) if before[low] > 0 else 0.0
     return (f"; with the fixes on {' and '.join(sorted(added))} made together, {led.name} gets "
-            f"{format_quantity(after, 'A')} at the low corner ({cost:.0f} % less)")
+            f"{format_quantity(after, 'A')} at the low corner ({_cost(before[low], after):.0f} % less)")
+
+
+def _remembered(key, work):
+    """_OUTCOMES[key], worked out by work() the first time (every time for key None)."""
+    if key is None:
+        return work()
+    if key not in _OUTCOMES:
+        _OUTCOMES[key] = work()
+    return _OUTCOMES[key]
+
+
+def _cost(before: float, after: float) -> float:
+    """What a change costs the LED's current, in percent of `before`."""
+    return 100.0 * (1 - after / float(before)) if before > 0 else 0.0
 
 
 def _at(design, pin):
@@ -169,14 +179,9 @@ def _fix(design, pin, pumped, current, surge=False):
     before = branch.current_A[led.name]
     low = worst_low(before)
     index = [p.label for p in region.pins].index(pin.label) if pin.label in [p.label for p in region.pins] else -1
-    key = ((region.signature, index, value, pin.max_current_A)
-           if region.signature is not None else None)
-    if key is not None and key in _OUTCOMES:
-        outcome = _OUTCOMES[key]
-    else:
-        outcome = _search(design, pin, pump, value, low, present_ohm)
-        if key is not None:
-            _OUTCOMES[key] = outcome
+    outcome = _remembered((region.signature, index, value, pin.max_current_A)
+                          if region.signature is not None else None,
+                          lambda: _search(design, pin, pump, value, low, present_ohm))
 
     def change(ohm, e24=" (E24, IEC 60063)"):
         if present is not None:
@@ -187,10 +192,9 @@ def _fix(design, pin, pumped, current, surge=False):
         return (f"{change(value, ' or more')}; re-run the check with it, as it costs the pump "
                 "some boost"), None
     value, after = outcome
-    cost = 100.0 * (1 - after / float(before[low])) if before[low] > 0 else 0.0
     return (f"{change(value)}: the model "
             f"re-run keeps it under {format_quantity(pin.max_current_A, 'A')}, and it costs "
-            f"{led.name} {cost:.0f} % of its average current at the low corner "
+            f"{led.name} {_cost(before[low], after):.0f} % of its average current at the low corner "
             f"({format_quantity(float(before[low]), 'A')} to {format_quantity(after, 'A')})"), \
         value - present_ohm
 
