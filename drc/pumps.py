@@ -132,9 +132,9 @@ def classify(region_elements: list[Element], pin_nets: dict, rail_nets: dict,
             charge_from = part.label if part is not None else None
         output = transfers[-1].nodes[1] if transfers else start
         # a reservoir: from the output to ground, or to a rail (the same to the pump's ripple)
-        reservoir = next((c for c in caps if c not in chain and output in c.nodes
-                          and (set(c.nodes) - {output}) <= ({GROUND} | set(rail_nets))
-                          and len(set(c.nodes)) == 2), None)
+        reservoir = next((c for c in caps if output in c.nodes and c.nodes[0] != c.nodes[1]
+                          and all(n == output or n == GROUND or n in rail_nets for n in c.nodes)
+                          and all(c is not x for x in chain)), None)
         if len(chain) >= 2:
             topology = "dickson"
         elif charge_diode is not None and transfers:
