@@ -1124,8 +1124,9 @@ def _solve_pump_branch(b: Branch, corners: Corners, flat: FlatDesign) -> None:
     b.forward_V = {led.name: v for led, v in zip(region.leds, forward)}
     b.reverse_V = {led.name: np.maximum(result.diode_reverse_max_V.get(led.name, np.zeros(corners.count)), 0.0)
                    for led in region.leds}
+    own_pins = {p.label for p in region.pins}
     b.pin_current_A = {label: np.maximum(result.pin_high_peak_A[label], result.pin_low_peak_A[label])
-                       for label in result.pin_high_peak_A if label in {p.label for p in region.pins}}
+                       for label in result.pin_high_peak_A if label in own_pins}
     b.series_resistance_ohm = np.full(corners.count, sum(x.value or 0.0 for x in b.resistors)) * corners.resistor_factor
 
 
