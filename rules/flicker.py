@@ -12,6 +12,10 @@ brief gives them): low risk below 90 Hz Mod% < 0.025*f, 90 to 1250 Hz Mod% < 0.0
 1250 Hz no limit; no observable effect below 90 Hz 0.01*f, 90 Hz to 3 kHz 0.0333*f, above
 3 kHz none.
 
+An infrared LED is not checked: its light is not seen, and both IEEE 1789's lines and the
+photosensitive band concern light that is (its eye-safety caution, IEC 62471, comes with
+its colour in every report).
+
 Example: a pin toggling an LED on and off at 500 Hz (100 % modulation, limit 40 %).
 
 Fix: toggle faster (above 1250 Hz the low-risk region has no limit), smooth the light with
@@ -34,6 +38,8 @@ PHOTOSENSITIVE = ("Flashing in the 3 to 60 Hz band can trouble photosensitive pe
 def check(design, settings):
     for branch in design.branches:
         for led in branch.leds:
+            if led.colour == "infrared":        # unseen: see the module's doc
+                continue
             found = flicker_of_branch(design, branch, led)
             if found is None:
                 continue

@@ -143,6 +143,19 @@ def test_flicker_of_a_toggled_pin(tmp_path, f_Hz, expect):
         assert "outside" in f["message"]
 
 
+
+def test_no_flicker_finding_for_an_infrared_led(tmp_path):
+    """The same 10 Hz flash through an infrared LED gives no flicker finding (IEEE 1789 and
+    the photosensitive band concern light that is seen), but keeps the report's infrared
+    eye-safety caution (IEC 62471); the visible LED above is found (see the test before)."""
+    per = 0.1
+    path = write(tmp_path, "led", PIN_LED.format(w=f"{per / 2 - 1e-6:g}", per=f"{per:g}"),
+                 PIN_TOML.replace('colour = "white"', 'colour = "infrared"'))
+    report = check(path)
+    assert not rules_of(report, "flicker")
+    assert report["branches"][0]["current_A"]["nominal"] > 0.5e-3    # lit: 0.7 mA on average
+    assert any("IEC 62471" in c for c in report["cautions"])
+
 def test_package_current_sums_pins(tmp_path):
     """Two pins at roughly 9 mA each: a 15 mA package total is passed, 25 mA is not."""
     net = """Two indicators on one port
