@@ -267,7 +267,9 @@ def _cautions(design: Design, findings: list[Finding]) -> list[str]:
     out = [GENERAL_CAUTION]
     if any(s.lithium for s in design.supplies.values()):
         out.append(CAUTIONS["lithium"])
-    if any(f.rule == "flicker" and 3 <= f.values.get("frequency_Hz", 0) <= 60 for f in findings) or any(
+    # a pin toggling in the band may flash an LED, unless every LED is infrared (unseen)
+    seen = any(l.colour != "infrared" for l in design.leds.values())
+    if any(f.rule == "flicker" and 3 <= f.values.get("frequency_Hz", 0) <= 60 for f in findings) or seen and any(
             p.drive == "toggle" and p.frequency_Hz and 3 <= p.frequency_Hz <= 60 for p in design.pins.values()):
         out.append(CAUTIONS["flashing"])
     if any(l.eye_safety for l in design.leds.values()):

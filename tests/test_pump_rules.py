@@ -155,6 +155,7 @@ def test_no_flicker_finding_for_an_infrared_led(tmp_path):
     assert not rules_of(report, "flicker")
     assert report["branches"][0]["current_A"]["nominal"] > 0.5e-3    # lit: 0.7 mA on average
     assert any("IEC 62471" in c for c in report["cautions"])
+    assert not any("photosensitive" in c for c in report["cautions"])     # every LED is unseen
 
 def test_package_current_sums_pins(tmp_path):
     """Two pins at roughly 9 mA each: a 15 mA package total is passed, 25 mA is not."""
