@@ -555,7 +555,16 @@ def analyse(flat: FlatDesign, context: Context) -> Design:
                 if np.size(p.high_V) else np.zeros(corners.count)
 
     leds = _find_leds(flat, context, assumptions)
-    branches = _trace_branches(flat, terminals, supplies, pins, leds, corners)
+    loads, unsolved = _pin_loads(terminals, pins, supplies, leds)
+    for label, names in unsolved.items():
+        assumptions.add(f"pin {label} also drives {', '.join(names)}, which drc does not solve there: "
+                        "taken as drawing no current from the pin")
+    branches = _trace_branches(flat, terminals, supplies, pins, leds, corners, loads)
+    for b in branches:              # a pump's model has its pins' own drive only
+        for pin in (b.pump_region.pins if b.pump_region is not None else ()):
+            if pin.net in loads:
+                assumptions.add(f"pin {pin.label} also drives {', '.join(x.name for x in loads[pin.net])}, "
+                                "which the pump model leaves out: taken as drawing no current from the pin")
     design = Design(path=flat.path, title=flat.title, flat=flat, context=context,
                     terminals=terminals, supplies=supplies, pins=pins, leds=leds,
                     branches=branches, corners=corners, assumptions=[])
@@ -855,7 +864,76 @@ def _is_wire(e: Element) -> bool:
 _STRING_SHORTCUT = True
 
 
-def _trace_branches(flat, terminals, supplies, pins, leds, corners) -> list[Branch]:
+def _pin_loads(terminals, pins: dict, supplies: dict, leds: dict) -> tuple[dict, dict]:
+    """What else a port pin's net drives besides its LED branches, for the pin's level and
+    its current: ({pin net: [elements]}, {pin label: [names]}). The first holds the parts
+    that hang off the pin net through nets of their own and reach only ground and rails,
+    all resistors (or inductors, or 0 V sources: wires at DC; capacitors, open at DC, on a
+    pin that does not toggle): the branches on the pin are solved with them, as one network.
+    The second names what drc cannot solve there (a diode, a source, a black-box part on a
+    pin that is a source, a capacitor on a toggling pin, a path to another pin): taken as
+    drawing no current, and said so."""
+    rail_nets = {s.net for s in supplies.values()}
+    pin_nets = {p.net: p for p in pins.values()}
+    stops = rail_nets | set(pin_nets) | {GROUND}
+    loads: dict[str, list[Element]] = {}
+    unsolved: dict[str, list[str]] = {}
+    for net, pin in pin_nets.items():
+        driver = pin.source.lower() if pin.source else None
+        seen: set[str] = set()
+        for e, _ in terminals.get(net, ()):
+            if e.key in seen or e.key == driver or e.key in leds or (driver is None and e.kind == "X"):
+                continue
+            # the part's circuit beyond the pin net, short of ground, rails and pins
+            found, todo, nets = {e.key: e}, [n for n in e.nodes if n not in stops], set()
+            nets.update(todo)
+            while todo:
+                for x, _ in terminals.get(todo.pop(), ()):
+                    if x.key not in found:
+                        found[x.key] = x
+                        for n in x.nodes:
+                            if n not in stops and n not in nets:
+                                nets.add(n)
+                                todo.append(n)
+            seen.update(found)
+            parts = list(found.values())
+            if any(x.key in leds for x in parts):
+                continue                       # an LED's branch: traced from the LED
+            touched = {n for x in parts for n in x.nodes}
+            other_pins = [n for n in touched if n in pin_nets and n != net]
+            toggles = pin.drive == "toggle"
+            solvable = not other_pins and all(
+                len(x.nodes) == 2 and (x.kind in "RL" or _is_wire(x) or (x.kind == "C" and not toggles))
+                for x in parts)
+            if solvable:
+                loads.setdefault(net, []).extend(x for x in parts if x.kind != "C")
+            else:
+                unsolved.setdefault(pin.label, []).extend(x.name for x in parts)
+    return {n: xs for n, xs in loads.items() if xs}, unsolved
+
+
+def _with_pin_loads(branches: list[Branch], loads: dict, rail_nets, pin_nets, corners, stops) -> None:
+    """Each branch on a pin that drives more than its LEDs (_pin_loads) takes those parts
+    into its circuit and is solved as a network; branches sharing the pin are then merged
+    (_merge_shared_pins), so each load is counted once. A pump's branch is left as it is."""
+    for b in branches:
+        if b.pump_region is not None or not b.phases:
+            continue
+        extra = [x for n in b.nets if n in loads for x in loads[n]]
+        if not extra:
+            continue
+        have = {x.key for x in b.elements}
+        b.elements = b.elements + [x for x in extra if x.key not in have]
+        b.resistors = [x for x in b.elements if x.kind == "R"]
+        b.nets = sorted({n for x in b.elements for n in x.nodes})
+        b.stages, b.phases, b.pin, b.sink_pin, b.supply, b.reversed = [], [], None, None, None, False
+        b.drive, b.source = "unknown", None
+        b.network = _NetworkRegion([n for n in b.nets if n not in stops],
+                                   [x for x in b.elements if x.kind != "C"])
+        _classify_network(b, rail_nets, pin_nets, corners)
+
+
+def _trace_branches(flat, terminals, supplies, pins, leds, corners, loads=None) -> list[Branch]:
     rail_nets = {s.net: s for s in supplies.values()}
     pin_nets = {p.net: p for p in pins.values()}
     stops = set(rail_nets) | set(pin_nets) | {GROUND}
@@ -988,6 +1066,8 @@ def _trace_branches(flat, terminals, supplies, pins, leds, corners) -> list[Bran
             branch.network = _NetworkRegion(sorted(r_nets), dc_elements)
             _classify_network(branch, rail_nets, pin_nets, corners)
         branches.append(branch)
+    if loads:
+        _with_pin_loads(branches, loads, rail_nets, pin_nets, corners, stops)
     return _merge_shared_pins(branches, rail_nets, pin_nets, corners, stops)
 
 

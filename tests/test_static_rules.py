@@ -462,3 +462,42 @@ def test_a_netlist_with_no_config_lists_every_default(tmp_path):
     assert any("VDD" in a and "3.3 V" in a for a in report["assumptions"])   # its DC value
     assert any("D1" in a and "visible" in a for a in report["assumptions"])  # LED ratings
     assert report["inputs"][0].get("config") is None
+
+
+UNSOLVED_LOADS = """Pin loads drc cannot solve (our own scenario)
+.model LRED D(IS=5e-19 N=2.0 RS=3 EG=2.2 XTI=3)
+.model SIL D(IS=2e-9 N=1.8 RS=0.5)
+VCC vcc 0 DC 3.3
+CCC vcc 0 1u
+VPA pa 0 PULSE(0 3.3 0 1u 1u 0.5m 1m)
+CF pa 0 100n
+R1 pa a 330
+D1 a 0 LRED
+VPB pb 0 DC 3.3
+DX pb q SIL
+RQ q 0 1k
+XU pb vcc SENSOR
+CB pb 0 100n
+R2 pb b 330
+D2 b 0 LRED
+.end
+"""
+
+
+def test_what_else_a_pin_drives_that_drc_cannot_solve_is_said(tmp_path):
+    """A capacitor on a toggling pin, a diode's path and a black-box part on a pin: each is
+    named under assumptions as taken to draw no current; a capacitor on a pin that does not
+    toggle is open at DC, and is not named."""
+    path = tmp_path / "loads.cir"
+    path.write_text(UNSOLVED_LOADS)
+    path.with_suffix(".toml").write_text(
+        '[supply.VCC]\nsource = "VCC"\nrange = ["3.0 V", "3.6 V"]\n'
+        '[pin.PA]\nsource = "VPA"\nsupply = "VCC"\n[pin.PB]\nsource = "VPB"\nsupply = "VCC"\n')
+    report = check(path)
+    said = [a for a in report["assumptions"] if "also drives" in a]
+    assert len(said) == 2, said
+    pa = next(a for a in said if a.startswith("pin PA "))
+    pb = next(a for a in said if a.startswith("pin PB "))
+    assert "CF" in pa and "drawing no current" in pa
+    assert all(name in pb for name in ("DX", "RQ", "XU")) and "CB" not in pb
+    assert {b["led"] for b in report["branches"] if b["drive"] == "pin"} == {"D1", "D2"}
