@@ -560,11 +560,6 @@ def analyse(flat: FlatDesign, context: Context) -> Design:
         assumptions.add(f"pin {label} also drives {', '.join(names)}, which drc does not solve there: "
                         "taken as drawing no current from the pin")
     branches = _trace_branches(flat, terminals, supplies, pins, leds, corners, loads)
-    for b in branches:              # a pump's model has its pins' own drive only
-        for pin in (b.pump_region.pins if b.pump_region is not None else ()):
-            if pin.net in loads:
-                assumptions.add(f"pin {pin.label} also drives {', '.join(x.name for x in loads[pin.net])}, "
-                                "which the pump model leaves out: taken as drawing no current from the pin")
     design = Design(path=flat.path, title=flat.title, flat=flat, context=context,
                     terminals=terminals, supplies=supplies, pins=pins, leds=leds,
                     branches=branches, corners=corners, assumptions=[])
@@ -868,11 +863,11 @@ def _pin_loads(terminals, pins: dict, supplies: dict, leds: dict) -> tuple[dict,
     """What else a port pin's net drives besides its LED branches, for the pin's level and
     its current: ({pin net: [elements]}, {pin label: [names]}). The first holds the parts
     that hang off the pin net through nets of their own and reach only ground and rails,
-    all resistors (or inductors, or 0 V sources: wires at DC; capacitors, open at DC, on a
-    pin that does not toggle): the branches on the pin are solved with them, as one network.
-    The second names what drc cannot solve there (a diode, a source, a black-box part on a
-    pin that is a source, a capacitor on a toggling pin, a path to another pin): taken as
-    drawing no current, and said so."""
+    all resistors or 0 V sources (and, on a pin that does not toggle, inductors, shorts at
+    DC, and capacitors, open at DC): the branches on the pin are solved with them, as one
+    network, or a pump's model takes them in. The second names what drc cannot solve there
+    (a diode, a source, a black-box part on a pin that is a source, a capacitor or inductor
+    on a toggling pin, a path to another pin): taken as drawing no current, and said so."""
     rail_nets = {s.net for s in supplies.values()}
     pin_nets = {p.net: p for p in pins.values()}
     stops = rail_nets | set(pin_nets) | {GROUND}
@@ -903,7 +898,7 @@ def _pin_loads(terminals, pins: dict, supplies: dict, leds: dict) -> tuple[dict,
             other_pins = [n for n in touched if n in pin_nets and n != net]
             toggles = pin.drive == "toggle"
             solvable = not other_pins and all(
-                len(x.nodes) == 2 and (x.kind in "RL" or _is_wire(x) or (x.kind == "C" and not toggles))
+                len(x.nodes) == 2 and (x.kind == "R" or _is_wire(x) or (x.kind in "LC" and not toggles))
                 for x in parts)
             if solvable:
                 loads.setdefault(net, []).extend(x for x in parts if x.kind != "C")
@@ -915,11 +910,13 @@ def _pin_loads(terminals, pins: dict, supplies: dict, leds: dict) -> tuple[dict,
 def _with_pin_loads(branches: list[Branch], loads: dict, rail_nets, pin_nets, corners, stops) -> None:
     """Each branch on a pin that drives more than its LEDs (_pin_loads) takes those parts
     into its circuit and is solved as a network; branches sharing the pin are then merged
-    (_merge_shared_pins), so each load is counted once. A pump's branch is left as it is."""
+    (_merge_shared_pins), so each load is counted once. A pin that lifts a pump gives its
+    load to the pump's model (_pump_branch) alone."""
+    pumping = {p.net for b in branches if b.pump_region is not None for p in b.pump_region.pins}
     for b in branches:
         if b.pump_region is not None or not b.phases:
             continue
-        extra = [x for n in b.nets if n in loads for x in loads[n]]
+        extra = [x for n in b.nets if n in loads and n not in pumping for x in loads[n]]
         if not extra:
             continue
         have = {x.key for x in b.elements}
@@ -1059,7 +1056,7 @@ def _trace_branches(flat, terminals, supplies, pins, leds, corners, loads=None) 
                                "neither end is a rail, a port pin or ground")
         elif pumped and problem is None:
             _pump_branch(branch, r_nets, r_elements, region_leds, pin_nets, rail_nets, toggling,
-                         pin_labels, lifting, through)
+                         pin_labels, lifting, through, loads)
         elif problem:
             branch.note = problem
         else:
@@ -1152,9 +1149,15 @@ def _lifted_through_resistors(toggling: set[str], terminals, stops, pin_nets) ->
 
 
 def _pump_branch(branch, r_nets, r_elements, region_leds, pin_nets, rail_nets, toggling,
-                 pin_labels, lifting, through) -> None:
+                 pin_labels, lifting, through, loads=None) -> None:
     from drc.pumps import PumpRegion, classify
     touched = sorted({n for x in r_elements for n in x.nodes})
+    if loads:           # what else the region's pins drive (_pin_loads) loads them in the model
+        have = {x.key for x in r_elements}
+        extra = [x for n in touched if n in pin_nets and n in loads for x in loads[n] if x.key not in have]
+        if extra:
+            r_elements = r_elements + extra
+            touched = sorted({n for x in r_elements for n in x.nodes})
     region_pins = [pin_nets[n] for n in touched if n in pin_nets]
     region_rails = [rail_nets[n] for n in touched if n in rail_nets]
     region = PumpRegion(sorted(r_nets), r_elements, region_pins, region_rails, region_leds)

@@ -175,6 +175,8 @@ CASES = [
     # and the same with a 0 ohm link in its place (the model once divided by its zero)
     (PUMPS / "doubler_pin_resistor.cir"),
     (PUMPS / "doubler_pin_link.cir"),
+    # the lifting pin's net also feeds a load to ground: the model takes it in
+    (PUMPS / "doubler_pin_loaded.cir"),
     # an LED coupled through a capacitor, with a diode restoring the plate: a bootstrap
     (PUMPS / "coupled_restorer.cir"),
     # one pump feeding two LEDs (the second is checked in test_every_led_of_a_pump_...)
