@@ -560,6 +560,16 @@ def analyse(flat: FlatDesign, context: Context) -> Design:
         assumptions.add(f"pin {label} also drives {', '.join(names)}, which drc does not solve there: "
                         "taken as drawing no current from the pin")
     branches = _trace_branches(flat, terminals, supplies, pins, leds, corners, loads)
+    for b in branches:
+        if b.pump_region is not None or not b.phases:
+            continue
+        toggles = list({p.label: p for p in (b.pin, b.sink_pin, *b.network_pins)
+                        if p is not None and p.drive == "toggle" and p.frequency_Hz}.values())
+        if len({p.frequency_Hz for p in toggles}) > 1:
+            assumptions.add("pins " + ", ".join(f"{p.label} ({p.frequency_Hz:g} Hz)" for p in toggles)
+                            + " toggle at different frequencies in one circuit: the share of time "
+                            "in each of their states taken as the product of their duties, as if "
+                            "they were independent")
     design = Design(path=flat.path, title=flat.title, flat=flat, context=context,
                     terminals=terminals, supplies=supplies, pins=pins, leds=leds,
                     branches=branches, corners=corners, assumptions=[])
@@ -1411,6 +1421,15 @@ def _classify_network(b: Branch, rail_nets, pin_nets, corners: Corners) -> None:
     b.network_pins = region_pins
     b.network_rails = rails
     states = list(itertools.product([True, False], repeat=len(region_pins)))
+    # pins toggling at one frequency are high together as their timing says, not as their
+    # duties multiplied would (three pins each high a third of the period, one after the
+    # other, are never high together); the share of each state is measured on their
+    # waveforms over one period (two toggling pins alone: high_share_with, below)
+    toggles = [p for p in region_pins if p.drive == "toggle"]
+    masks = None
+    if (len(toggles) >= 2 and len({p.frequency_Hz for p in toggles}) == 1
+            and not (len(region_pins) == 2 and len(toggles) == 2)):
+        masks = [p._high_mask(toggles[0]) for p in region_pins]
     phases = []
     for state in states:
         share = 1.0
@@ -1421,6 +1440,11 @@ def _classify_network(b: Branch, rail_nets, pin_nets, corners: Corners) -> None:
                 share *= 0.0
             else:
                 share *= 1.0 if (pin.drive == "high") == high else 0.0
+        if masks is not None and share > 0:     # (a static pin's wrong state, an input: 0)
+            together = np.ones(len(masks[0]), dtype=bool)
+            for mask, high in zip(masks, state):
+                together &= mask if high else ~mask
+            share = float(together.mean())
         if len(region_pins) == 2 and all(p.drive == "toggle" for p in region_pins):
             first, second = region_pins
             both = first.high_share_with(second, True)

@@ -219,6 +219,30 @@ def test_toggling_pin_average_matches_ngspice_transient():
     assert _deviation("pulse_pin (tran average)", ours, mean) <= NOMINAL_TOL
 
 
+
+def test_three_pins_in_turn_against_ngspice_transient():
+    """Three pins toggling at one frequency, each high a third of the period in turn, with
+    an LED between each pair: each LED lights a third of the time (drc once multiplied the
+    pins' duties as if they were independent, and gave two thirds of that). Each LED's
+    average over the second period of ngspice's .tran, its current read as its resistor's
+    (150 ohm, in series with it alone), at 27 degC."""
+    ngspice.require_ngspice()
+    design = _analyse("three_phase_ring")
+    text = (HERE / "three_phase_ring.cir").read_text()
+    for source, net in (("VPA", "pa"), ("VPB", "pb"), ("VPC", "pc")):
+        text = _with_pin_resistance(text, source, net, 40.0)
+    wave = ngspice.tran(text, 1e-6, 2e-3, ["v(pa)", "v(a)", "v(pb)", "v(b)", "v(pc)", "v(c)"],
+                        uic=False, max_step_s=1e-6)
+    t = wave["time"]
+    keep = t >= 1e-3 - 1e-12
+    i = _corner(design, 27.0)
+    for led, (top, bottom) in {"D1": ("pa", "a"), "D2": ("pb", "b"), "D3": ("pc", "c")}.items():
+        current = (wave[f"v({top})"] - wave[f"v({bottom})"]) / 150.0
+        reference = float(np.trapezoid(current[keep], t[keep]) / (t[keep][-1] - t[keep][0]))
+        ours = float(_branch_of(design, led).current_A[led][i])
+        assert _deviation("three_phase_ring (tran average)", ours, reference) <= NOMINAL_TOL, \
+            (led, ours, reference)
+
 def test_model_parameters_are_used():
     """RS, N, EG, XTI and TNOM all reach drc's diode: its forward voltage at the nominal
     corner equals ngspice's node voltage across the LED."""

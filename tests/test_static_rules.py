@@ -501,3 +501,28 @@ def test_what_else_a_pin_drives_that_drc_cannot_solve_is_said(tmp_path):
     assert "CF" in pa and "drawing no current" in pa
     assert all(name in pb for name in ("DX", "RQ", "XU")) and "CB" not in pb
     assert {b["led"] for b in report["branches"] if b["drive"] == "pin"} == {"D1", "D2"}
+
+
+def test_pins_at_two_frequencies_in_one_circuit_are_said_to_be_taken_as_independent(tmp_path):
+    """A bi-colour LED pair between a 1 kHz pin and a 2.5 kHz one: how long the two are in
+    each state together depends on more than their duties; drc takes the product of the
+    duties, and says so under assumptions (the same pins at one frequency: nothing said)."""
+    net = """Bi-colour pair between two pins (our own scenario)
+.model LRED D(IS=5e-19 N=2.0 RS=3 EG=2.2 XTI=3)
+VCC vcc 0 DC 3.3
+CCC vcc 0 1u
+VPA pa 0 PULSE(0 3.3 0 10n 10n 0.5m 1m)
+VPB pb 0 PULSE(3.3 0 0 10n 10n {w} {per})
+R1 pa m 100
+DR m pb LRED
+DG pb m LRED
+.end
+"""
+    said = []
+    for w, per in (("0.2m", "0.4m"), ("0.5m", "1m")):
+        path = tmp_path / f"pair_{per}.cir"
+        path.write_text(net.format(w=w, per=per))
+        path.with_suffix(".toml").write_text('[supply.VCC]\nsource = "VCC"\n')
+        said.append([a for a in check(path)["assumptions"] if "different frequencies" in a])
+    assert len(said[0]) == 1 and "VPA (1000 Hz)" in said[0][0] and "2500 Hz" in said[0][0], said
+    assert said[1] == []
