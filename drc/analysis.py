@@ -545,6 +545,14 @@ def analyse(flat: FlatDesign, context: Context) -> Design:
         raise InputErrors(errors)
 
     corners = make_corners(supplies, context, with_capacitors=True, assumptions=assumptions)
+    if flat.temperatures_C:         # a simulation's .temp: drc's corners come from [ambient]
+        low, high = context.temperature_C
+        outside = [t for t in flat.temperatures_C if not low <= t <= high]
+        assumptions.add(
+            f"the netlist's .temp ({', '.join(f'{t:g} °C' for t in flat.temperatures_C)}) is a "
+            f"simulator's setting: drc's corners span {low:g} °C to {high:g} °C ([ambient] temperature)"
+            + (f", which leaves out {', '.join(f'{t:g} °C' for t in outside)}: widen it to cover "
+               "what the product will see" if outside else ""))
     for s in supplies.values():
         s.voltage_V = corners.supply_V[s.label]
     for p in pins.values():

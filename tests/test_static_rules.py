@@ -526,3 +526,26 @@ DG pb m LRED
         said.append([a for a in check(path)["assumptions"] if "different frequencies" in a])
     assert len(said[0]) == 1 and "VPA (1000 Hz)" in said[0][0] and "2500 Hz" in said[0][0], said
     assert said[1] == []
+
+
+def test_a_temp_card_is_said_to_be_the_simulators_and_a_temperature_outside_is_named(tmp_path):
+    """A netlist's `.temp` sets a simulator's temperature; drc's corners come from
+    [ambient] (the contract). The report says so, and names a .temp value the corners
+    leave out."""
+    net = """Porch light tell-tale (our own scenario)
+.model LRED D(IS=5e-19 N=2.0 RS=3 EG=2.2 XTI=3)
+VCC vcc 0 DC 3.3
+R1 vcc a 150
+D1 a 0 LRED
+.temp {temps}
+.end
+"""
+    said = {}
+    for temps in ("25 85", "0 40"):
+        path = tmp_path / f"porch_{temps.replace(' ', '_')}.cir"
+        path.write_text(net.format(temps=temps))
+        path.with_suffix(".toml").write_text('[ambient]\ntemperature = ["-10 degC", "50 degC"]\n')
+        said[temps] = [a for a in check(path)["assumptions"] if ".temp" in a]
+    assert len(said["25 85"]) == 1 and "-10 °C to 50 °C" in said["25 85"][0]
+    assert "leaves out 85 °C" in said["25 85"][0]
+    assert len(said["0 40"]) == 1 and "leaves out" not in said["0 40"][0]
