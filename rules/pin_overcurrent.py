@@ -34,9 +34,10 @@ RULE = Rule(id="pin-overcurrent", severity="error",
                      "capacitor charging law v(t) = V(1 - exp(-t/RC))"))
 
 
-# (pump cell signature, pin index, first value tried, pin limit) -> (ohm, LED current
-# after) or None: what _search finds depends on nothing else. And (signature, ((pin, ohm
-# added), ...), corner) -> the LED's current there with all of them (_together).
+# (pump cell signature, pin index, first value tried, pin limit) -> (ohm, (each LED's
+# current after, in the region's order)) or None: what _search finds depends on nothing
+# else. And (signature, ((pin, ohm added), ...), (each LED's low corner, ...)) -> each LED's
+# current there with all of them (_together). By position, not name: twin cells share them.
 _OUTCOMES = {}
 
 
@@ -109,26 +110,30 @@ def check(design, settings):
 
 def _together(design, pump, pumped, added):
     """Where the surge fixes of several pins of one pump region would all be made, what
-    they cost the LED together (each fix's own cost is with its resistor alone): words to
+    they cost its LEDs together (each fix's own cost is with its resistor alone): words to
     add to each of those fixes, or ''."""
     if len(added) < 2 or not pumped:
         return ""
     region = pump.region
-    led = region.leds[0]
-    before = pumped[0].current_A[led.name]
-    low = worst_low(before)
+    branch = pumped[0]
+    lows = {led.name: worst_low(branch.current_A[led.name]) for led in region.leds}
 
     def work():
         try:
-            return float(rerun_pump(design, pump, series_ohm=added).diode_average_A[led.name][low])
+            r = rerun_pump(design, pump, series_ohm=added)
         except Exception:
             return None
-    after = _remembered((region.signature, tuple(sorted(added.items())), low)
+        return tuple(float(r.diode_average_A[name][low]) for name, low in lows.items())
+    after = _remembered((region.signature, tuple(sorted(added.items())), tuple(lows.values()))
                         if region.signature is not None else None, work)
     if after is None:
         return ""
-    return (f"; with the fixes on {' and '.join(sorted(added))} made together, {led.name} gets "
-            f"{format_quantity(after, 'A')} at the low corner ({_cost(before[low], after):.0f} % less)")
+    gets = []
+    for (name, low), now in zip(lows.items(), after):
+        before = float(branch.current_A[name][low])
+        gets.append(f"{name} gets {format_quantity(now, 'A')} at the low corner "
+                    f"({_cost(before, now):.0f} % less)")
+    return f"; with the fixes on {' and '.join(sorted(added))} made together, " + ", and ".join(gets)
 
 
 def _remembered(key, work):
@@ -175,13 +180,12 @@ def _fix(design, pin, pumped, current, surge=False):
                 "then check the LEDs' headroom again"), None
     branch = pumped[0]
     region = branch.pump_region
-    led = region.leds[0]
-    before = branch.current_A[led.name]
-    low = worst_low(before)
+    # every LED the pump feeds, each at its own low corner
+    lows = {led.name: worst_low(branch.current_A[led.name]) for led in region.leds}
     index = [p.label for p in region.pins].index(pin.label) if pin.label in [p.label for p in region.pins] else -1
     outcome = _remembered((region.signature, index, value, pin.max_current_A)
                           if region.signature is not None else None,
-                          lambda: _search(design, pin, pump, value, low, present_ohm))
+                          lambda: _search(design, pin, pump, value, lows, present_ohm))
 
     def change(ohm, e24=" (E24, IEC 60063)"):
         if present is not None:
@@ -194,15 +198,28 @@ def _fix(design, pin, pumped, current, surge=False):
     value, after = outcome
     return (f"{change(value)}: the model "
             f"re-run keeps it under {format_quantity(pin.max_current_A, 'A')}, and it costs "
-            f"{led.name} {_cost(before[low], after):.0f} % of its average current at the low corner "
-            f"({format_quantity(float(before[low]), 'A')} to {format_quantity(after, 'A')})"), \
-        value - present_ohm
+            f"{_costs(branch, lows, after)}"), value - present_ohm
 
 
-def _search(design, pin, pump, value, low, present_ohm=0.0):
+def _costs(branch, lows, after) -> str:
+    """What a change costs each LED of a pump at its low corner, in words: `after` holds
+    each LED's current there with the change, in the order of `lows`."""
+    parts = []
+    for (name, low), now in zip(lows.items(), after):
+        before = float(branch.current_A[name][low])
+        parts.append(f"{name} {_cost(before, now):.0f} %" + (" of its average current at the low corner"
+                                                             if len(lows) == 1 else "")
+                     + f" ({format_quantity(before, 'A')} to {format_quantity(now, 'A')})")
+    if len(parts) == 1:
+        return parts[0]
+    return ", ".join(parts[:-1]) + " and " + parts[-1] + " of their average currents at their low corners"
+
+
+def _search(design, pin, pump, value, lows, present_ohm=0.0):
     """The least E24 value from `value` up that the model shows to keep the pin within its
-    limit, and the LED's average current at the low corner with it; None if none of 8 does.
-    The value replaces the pin's series resistor of present_ohm, if it has one."""
+    limit, and each LED's average current with it at its low corner (`lows`: LED -> corner);
+    None if none of 8 does. The value replaces the pin's series resistor of present_ohm, if
+    it has one."""
     for _ in range(8):
         try:
             r = rerun_pump(design, pump, series_ohm={pin.label: value - present_ohm})
@@ -212,6 +229,7 @@ def _search(design, pin, pump, value, low, present_ohm=0.0):
                     float(np.max(np.maximum(r.pin_high_peak_A.get(pin.label, 0.0),
                                             r.pin_low_peak_A.get(pin.label, 0.0)))))
         if worst <= pin.max_current_A:
-            return value, float(r.load_average_A[low])
+            # in the order of the LEDs (a twin cell remembers it under other names)
+            return value, tuple(float(r.diode_average_A[name][low]) for name, low in lows.items())
         value = preferred.at_or_above(value * 1.2, "E24")
     return None

@@ -186,3 +186,27 @@ supply = "VDD"
         assert bool(found) == fires, (limit, report["findings"], report["branches"])
         if fires:
             assert set(found[0]["elements"]) == {"P1", "P2"}
+
+
+def test_twin_pump_cells_each_name_their_own_leds_in_the_surge_fix(tmp_path):
+    """Two identical doubler cells on two pins (drc works out the first cell's fixes and
+    takes them over for its twin): each surge fix names the LED of its own cell."""
+    cell = """VCK{n} ck{n} 0 PULSE(0 1.8 0 10n 10n 0.25m 0.5m)
+DCH{n} vdd x{n} SBD
+CP{n} ck{n} x{n} 22u
+DTR{n} x{n} out{n} SBD
+CR{n} out{n} 0 4.7u
+DL{n} out{n} k{n} WLED
+RL{n} k{n} 0 47
+"""
+    net = ("Two twin cells (our own scenario)\n.include parts.lib\nVDD vdd 0 DC 1.8\nCDD vdd 0 4.7u\n"
+           + cell.format(n="A") + cell.format(n="B") + ".end\n")
+    toml = ('[supply.VDD]\nsource = "VDD"\nrange = ["1.7 V", "1.9 V"]\n'
+            '[pin.CKA]\nsource = "VCKA"\nsupply = "VDD"\n[pin.CKB]\nsource = "VCKB"\nsupply = "VDD"\n')
+    (tmp_path / "parts.lib").write_text((PUMPS / "parts.lib").read_text())
+    path = write(tmp_path, "twins", net, toml)
+    surges = [f for f in rules_of(check(path), "pin-overcurrent") if "surge" in f["message"]]
+    assert {f["message"].split()[1] for f in surges} == {"CKA", "CKB"}
+    for f in surges:
+        own = "DLA" if "CKA" in f["message"] else "DLB"
+        assert f" {own} " in f["fix"] and ({"DLA", "DLB"} - {own}).pop() not in f["fix"], f["fix"]

@@ -486,6 +486,26 @@ def test_surge_fixes_of_two_pins_state_their_cost_together(tmp_path):
     assert _deviation(alone_A, reference) > 0.10
 
 
+
+def test_surge_fix_states_its_cost_to_every_led_of_the_pump(tmp_path):
+    """doubler_two_leds: the pin's surge fix (an E24 resistor) costs both LEDs the pump
+    feeds, and says what each keeps at its own low corner. The second LED's figure against
+    ngspice .tran (uic) of the netlist with the resistor in: within 10 % (the issue's
+    tolerance for an LED's average current)."""
+    require_ngspice()
+    from drc.engine import run_check
+    original = PUMPS / "doubler_two_leds.cir"
+    report, _, _ = run_check([str(original)], None, [])
+    [f] = [f for f in report["findings"] if f["rule"] == "pin-overcurrent" and "surge" in f["message"]]
+    m = re.search(r"add (\d+) Ω \(E24.* DL1 \d+ % \([\d.]+ µA to [\d.]+ µA\) and DL2 \d+ % "
+                  r"\([\d.]+ µA to ([\d.]+) µA\) of their average currents", f["fix"].replace("\n", " "))
+    assert m, f["fix"]
+    stated_A = float(m.group(2)) * 1e-6
+    text = original.read_text().replace("CP ck x 22u", f"RSF ck pr {m.group(1)}\nCP pr x 22u")
+    reference = _fixed_led_in_ngspice(tmp_path, original, text, "DL2",
+                                      {"parts.lib": (PUMPS / "parts.lib").read_text()})
+    assert _deviation(stated_A, reference) <= 0.10, (stated_A, reference)
+
 def test_capacitor_fix_of_two_cells_changes_both(tmp_path):
     """twin_doubler_small: two doubler cells of 100 nF fall short of 0.3 mA. The fix names
     one value for the cells' pumping capacitors (it once scaled the first cell's alone, and
