@@ -225,7 +225,23 @@ def needed_voltage(design: Design, branch: Branch, current_A: float, index: int)
 
 def series_resistor_advice(design: Design, branch: Branch, led: Led, goal: str = "both") -> str:
     """The E24 series resistor (IEC 60063) that keeps `led` visible at every corner and under
-    its maximum at every corner, computed; or a plain statement that none can, and what would."""
+    its maximum at every corner, computed; or a plain statement that none can, and what would.
+
+    A string solved as a network with what else its pin drives (Branch.pin_loads) gets the
+    advice worked out for the string alone, and says so: such a load only lowers the drive
+    the string sees (a pull-down on a sourcing pin, a pull-up on a sinking one), so a value
+    kept under the maximum stays under it, and visibility is to be checked again."""
+    if branch.network is not None and branch.pin_loads and branch.string_alone is not None:
+        import copy
+        view = copy.copy(branch)
+        view.network, (view.stages, view.phases) = None, branch.string_alone
+        nominal = design.corners.nominal
+        view.lit_phase = max(range(len(view.phases)), key=lambda k: float(view.phases[k].drive_V[nominal]))
+        pins = sorted({p.label for p in branch.network_pins})
+        return (series_resistor_advice(design, view, led, goal) +
+                f" (worked out for the string alone: what else {' and '.join(pins)} "
+                f"drive{'s' if len(pins) == 1 else ''}, {', '.join(x.name for x in branch.pin_loads)}, "
+                "lowers its drive; check again with the new value)")
     if branch.network is not None or not branch.phases or not branch.stages:
         return ("its circuit is not a plain string: adjust the resistors around "
                 f"{led.name} and check again")

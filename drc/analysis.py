@@ -338,6 +338,11 @@ class Branch:
     pump_region: "Any" = None       # drc.pumps.PumpRegion for a pump-fed LED
     network_pins: list = field(default_factory=list)
     network_rails: list = field(default_factory=list)
+    # what else its pins' nets drive, solved with it (a plain string before them: its
+    # `resistors` stay the string's own, in series with its LEDs, and `string_alone` is
+    # (its stages, its phases) as a string, for fixes; see drc.advice)
+    pin_loads: list = field(default_factory=list)
+    string_alone: tuple | None = None
 
     @property
     def led(self) -> Led:
@@ -938,8 +943,13 @@ def _with_pin_loads(branches: list[Branch], loads: dict, rail_nets, pin_nets, co
         if not extra:
             continue
         have = {x.key for x in b.elements}
-        b.elements = b.elements + [x for x in extra if x.key not in have]
-        b.resistors = [x for x in b.elements if x.kind == "R"]
+        b.pin_loads = [x for x in extra if x.key not in have]
+        was_string = b.network is None
+        b.elements = b.elements + b.pin_loads
+        if not was_string:
+            b.resistors = [x for x in b.elements if x.kind == "R"]
+        elif not b.reversed:
+            b.string_alone = (b.stages, b.phases)
         b.nets = sorted({n for x in b.elements for n in x.nodes})
         b.stages, b.phases, b.pin, b.sink_pin, b.supply, b.reversed = [], [], None, None, None, False
         b.drive, b.source = "unknown", None

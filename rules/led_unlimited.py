@@ -26,7 +26,9 @@ RULE = Rule(id="led-unlimited", severity="error",
 
 def check(design, settings):
     for branch in design.branches:
-        if not branch.unlimited or branch.network is not None or branch.reversed:
+        # a network's resistors may all be beside its LEDs; a string solved with what else
+        # its pin drives (pin_loads) still knows its own
+        if not branch.unlimited or (branch.network is not None and not branch.pin_loads) or branch.reversed:
             continue
         for led in branch.leds:
             values, at = {}, None

@@ -549,3 +549,33 @@ D1 a 0 LRED
     assert len(said["25 85"]) == 1 and "-10 °C to 50 °C" in said["25 85"][0]
     assert "leaves out 85 °C" in said["25 85"][0]
     assert len(said["0 40"]) == 1 and "leaves out" not in said["0 40"][0]
+
+
+def test_an_unlimited_led_on_a_pin_with_a_pull_down_is_found_and_its_fix_holds(tmp_path):
+    """An LED straight on a pin whose net also has a 10 k pull-down: still led-unlimited
+    (the pull-down is beside it, not in series). The fix is worked out for the string alone
+    and says so; with its E24 value in series, the check (which solves the pull-down with
+    it) finds the LED under its maximum."""
+    net = """Lid-open tell-tale (our own scenario)
+.model LRED D(IS=5e-19 N=2.0 RS=3 EG=2.2 XTI=3)
+VCC vcc 0 DC 3.3
+CCC vcc 0 1u
+VPA pa 0 DC 3.3
+RPD pa 0 10k
+D1 pa 0 LRED
+.end
+"""
+    toml = '[supply.VCC]\nsource = "VCC"\nrange = ["3.0 V", "3.6 V"]\n[pin.PA]\nsource = "VPA"\nsupply = "VCC"\n'
+    path = tmp_path / "lid.cir"
+    path.write_text(net)
+    path.with_suffix(".toml").write_text(toml)
+    [f] = of_rule(check(path), "led-unlimited")
+    assert "for the string alone" in f["fix"] and "RPD" in f["fix"], f["fix"]
+    ohm = named_ohm(f["fix"])
+    assert in_e24(ohm)
+    fixed = tmp_path / "lid_fixed.cir"
+    fixed.write_text(net.replace("D1 pa 0 LRED", f"RF pa a {ohm:g}\nD1 a 0 LRED"))
+    fixed.with_suffix(".toml").write_text(toml)
+    report = check(fixed)
+    assert not of_rule(report, "led-unlimited") and not of_rule(report, "led-overcurrent")
+    assert report["branches"][0]["current_A"]["high"] < 20e-3
