@@ -250,6 +250,9 @@ class Pin:
     clamp_above_supply_V: float = 0.3
     clamp_current_A: float = 0.005
     high_V: np.ndarray = field(default_factory=lambda: np.zeros(0))       # at every corner
+    # low until its first rising edge, from rest (a PULSE whose first level is its low one):
+    # a high phase that wraps round the period's end is not there at the very start
+    rest_low: bool = False
 
     @property
     def period_s(self) -> float | None:
@@ -667,12 +670,12 @@ def _pulse_timing(e: Element) -> tuple[float, float, float, float, float, float,
     if v2 >= v1:
         high, low = v2, v1
         start = td + tr / 2
-        # high from the middle of its rising edge to the middle of its falling one, and never
-        # past the period's end: a PULSE holds its first level until its delay, so the high
-        # phase does not wrap round to t = 0 (what the start-up from rest would see)
+        # high from the middle of its rising edge to the middle of its falling one; a high
+        # phase that runs past the period's end wraps round (in the steady state the pin is
+        # high that long in every period, whatever its delay). From rest a PULSE holds its
+        # first level until its delay, so at the very start the wrapped part is not there:
+        # Pin.rest_low, which the pump model's start-up follows
         width = pw + (tr + tf) / 2
-        if start < per:
-            width = min(width, per - start)
     else:
         high, low = v1, v2
         start = td + tr + pw + tf / 2
@@ -731,6 +734,8 @@ def _pulse_pin(e: Element, spec: PinSpec | None, supplies: dict[str, Supply],
               clamp_above_supply_V=spec.clamp_above_supply_V if spec else profile.clamp_above_supply_V,
               clamp_current_A=spec.clamp_current_A if spec else profile.clamp_current_A)
     pin.high_V = np.array(high)
+    args = list(e.source.waveform.args) + [0.0, 0.0]
+    pin.rest_low = args[1] >= args[0]          # its first level (v1) is its low one
     return pin
 
 
@@ -1260,7 +1265,7 @@ def _pump_key(region, corners: Corners, flat: FlatDesign):
         else:
             parts.append((x.kind, nodes, x.value))
     pins = tuple((canon(p.net), p.drive, p.supply, p.output_resistance_ohm, p.frequency_Hz, p.duty,
-                  p.start_s, value_key(p.high_V)) for p in region.pins)
+                  p.start_s, p.rest_low, value_key(p.high_V)) for p in region.pins)
     rails = tuple((canon(r.net), r.label, value_key(r.voltage_V)) for r in region.rails)
     nets = tuple(canon(n) for n in region.nets)
     output = canon(region.pumps[0].output_net if region.pumps else load.element.nodes[0])

@@ -70,7 +70,10 @@ class PinDrive:
 
     Timing is shared by all corners (floats): plain pins are high for the first `duty` share
     of each period after `delay_s`; an `inverted` pin is high for the rest of the period.
-    `high_V` and `output_resistance_ohm` may be (C,) arrays.
+    `high_V` and `output_resistance_ohm` may be (C,) arrays. `rest_low`: from rest the pin is
+    low until its first rising edge, so a high phase that wraps round the period's end is
+    left out of the first period of the start-up (a PULSE source holds its first level,
+    here its low one, until its delay).
     """
 
     name: str
@@ -81,6 +84,7 @@ class PinDrive:
     duty: float = 0.5
     inverted: bool = False
     delay_s: float = 0.0
+    rest_low: bool = False
 
 
 @dataclass(frozen=True)
@@ -365,10 +369,18 @@ class _Compiled:
             edges.update({round(start, 12) % 1.0, round(start + width, 12) % 1.0})
             spans.append((start, width))
         edge_list = np.array(sorted(edges))
-        self.first_edge_s = min(min(s % 1.0, (s + w) % 1.0) for s, w in spans) * self.period_s
         mids = (edge_list + np.append(edge_list[1:], 1.0)) / 2
         high = np.array([[((m - s) % 1.0) < w for (s, w) in spans] for m in mids])  # (S, P)
         self.segment_high = high
+        # the first period from rest: a pin that rests low has no wrapped high phase yet
+        first = high.copy()
+        wraps = [p.rest_low and s + w > 1.0 + 1e-12 for p, (s, w) in zip(pins, spans)]
+        for k, (s, w) in enumerate(spans):
+            if wraps[k]:
+                first[mids < s, k] = False
+        self.first_high = first
+        self.first_edge_s = min(s % 1.0 if wrapped else min(s % 1.0, (s + w) % 1.0)
+                                for wrapped, (s, w) in zip(wraps, spans)) * self.period_s
         # the shortest time constant an edge excites through a pin: no path from a pin into
         # the capacitors has less resistance than the pin's own, nor less capacitance than
         # the smallest capacitor over the number of capacitors (all of them in series)
@@ -393,11 +405,14 @@ class _Compiled:
         K = len(h)
 
         # source currents per segment: pins through their Norton conductances, plus rails
-        seg_current = np.repeat(rail_current[None], len(edge_list), 0)
-        for s in range(len(edge_list)):
-            for k in range(len(pins)):
-                if high[s, k]:
-                    seg_current[s, :, self.pin_node[k]] += self.pin_G[:, k] * self.pin_level[:, k]
+        def injected(states):
+            current = np.repeat(rail_current[None], len(edge_list), 0)
+            for s in range(len(edge_list)):
+                for k in range(len(pins)):
+                    if states[s, k]:
+                        current[s, :, self.pin_node[k]] += self.pin_G[:, k] * self.pin_level[:, k]
+            return current
+        seg_current = injected(high)
         self.seg_current = seg_current
         # a ladder of n capacitors lifts at most n + 1 times every source's level added up
         self.voltage_bound = (ncap + 1) * (self.pin_level.sum(axis=1) + sum(
@@ -439,12 +454,18 @@ class _Compiled:
         self.BF1 = np.concatenate([self.B1, self.F1], axis=2)              # (K, C, nd+ncap, ncap)
         self.BF2 = np.concatenate([self.B2, self.F2], axis=2)
         self.ae = np.concatenate([self.a, self.e], axis=2)                 # (K, C, nd+ncap)
+        # the first period's (self.first_high): its own source terms where they differ
+        if (self.first_high != self.segment_high).any():
+            self.P_first = np.einsum("kcij,kcj->kci", Ginv, injected(self.first_high)[segment])
+            self.ae_first = np.concatenate([self.P_first @ A.T, self.P_first @ D.T], axis=2)
+        else:
+            self.P_first, self.ae_first = self.P, self.ae
         self.steps = K
 
     _PER_CORNER = ("Is", "nvt", "vcrit", "inv_nvt", "Is_over_nvt", "pin_G", "pin_level", "cap", "seg_current",
                    "voltage_bound")
     _PER_STEP = ("Q1", "Q2", "R", "P", "Z", "Z_abs", "B1", "B2", "a", "F1", "F2", "H", "e",
-                 "BF1", "BF2", "ae")
+                 "BF1", "BF2", "ae", "P_first", "ae_first")
 
     def subset(self, idx: np.ndarray) -> "_Compiled":
         """The same network at the corners `idx` only."""
@@ -515,8 +536,10 @@ class _Compiled:
         spread = np.abs(i) * (1.0 + np.abs(vj) * self.inv_nvt) + g * np.abs(vj)
         return ROUND_OFF_ULPS * np.finfo(float).eps * np.einsum("cij,cj->ci", Z_abs, spread)
 
-    def run_period(self, x, vj, sensitivity: bool, guesses=None, load: int | None = None):
-        """One period from capacitor voltages x (C, ncap); junction guess vj (C, nd).
+    def run_period(self, x, vj, sensitivity: bool, guesses=None, load: int | None = None,
+                   first: bool = False):
+        """One period from capacitor voltages x (C, ncap); junction guess vj (C, nd);
+        `first`: the first period from rest (first_high).
 
         `guesses`, if given, is (junction voltages per step (K, C, nd), corner mask (C,)):
         where the mask holds, Newton starts each step there, else from the previous step. Returns a dict: x and vj at the end, per
@@ -536,11 +559,12 @@ class _Compiled:
             dvj_dx0 = np.empty((K, C, nd, ncap))
         eye = np.eye(nd)
         x_old, Phi_old = x, Phi if sensitivity else None
+        ae = self.ae_first if first else self.ae
         for k in range(K):
             xs[k] = x
             Z = self.Z[k]
             bdf2 = self.bdf2[k]
-            linear = self.ae[k] + np.einsum("cij,cj->ci", self.BF1[k], x)
+            linear = ae[k] + np.einsum("cij,cj->ci", self.BF1[k], x)
             if bdf2:
                 linear += np.einsum("cij,cj->ci", self.BF2[k], x_old)
             voc = linear[:, :nd]
@@ -569,10 +593,11 @@ class _Compiled:
             result["Phi"], result["dq"], result["dvj_dx0"] = Phi, dq, dvj_dx0
         return result
 
-    def node_voltages(self, xs, currents):
-        """Node voltages at each step's end (K, C, n) from the recorded states and currents."""
+    def node_voltages(self, xs, currents, first: bool = False):
+        """Node voltages at each step's end (K, C, n) from the recorded states and currents
+        (`first`: of the first period from rest)."""
         xs_old = np.concatenate([xs[:1], xs[:-1]], 0)     # unused (Q2 = 0) after an edge
-        return (self.P + np.einsum("kcij,kcj->kci", self.Q1, xs)
+        return ((self.P_first if first else self.P) + np.einsum("kcij,kcj->kci", self.Q1, xs)
                 + np.einsum("kcij,kcj->kci", self.Q2, xs_old)
                 - np.einsum("kcij,kcj->kci", self.R, currents))
 
@@ -582,9 +607,10 @@ class _Compiled:
         charge[1:] += current[:-1] * self.charge_start[1:, None]
         return charge
 
-    def pin_currents(self, V):
-        """Current out of each pin at each step's end (K, C, P)."""
-        high = self.segment_high[self.step_segment]                        # (K, P)
+    def pin_currents(self, V, first: bool = False):
+        """Current out of each pin at each step's end (K, C, P) (`first`: in the first period
+        from rest)."""
+        high = (self.first_high if first else self.segment_high)[self.step_segment]   # (K, P)
         level = np.where(high[:, None, :], self.pin_level[None], 0.0)
         return self.pin_G[None] * (level - V[:, :, self.pin_node])
 
@@ -648,10 +674,10 @@ def simulate_periodic(network: PumpNetwork, temperature_K, output_node: str, loa
     if steady_only:
         surge_periods = 0
     for p in range(surge_periods):
-        run = sys.run_period(x, vj, sensitivity=False)
-        V = sys.node_voltages(run["xs"], run["currents"])
+        run = sys.run_period(x, vj, sensitivity=False, first=p == 0)
+        V = sys.node_voltages(run["xs"], run["currents"], first=p == 0)
         start_V.append(V)
-        start_pin.append(sys.pin_currents(V))
+        start_pin.append(sys.pin_currents(V, first=p == 0))
         charge = charge_total[:, None] + np.cumsum(sys.step_charges(load_of(run["currents"])).T, 1)
         window = (charge - charge_prev) / T          # average over the last period (0 before)
         hit = (window >= visible[:, None]) & ~np.isfinite(visible_at)[:, None]

@@ -187,7 +187,7 @@ def network_of(region: PumpRegion, corners, diode_params, series_ohm: dict[str, 
         if pin.drive == "toggle":
             pins.append(PinDrive(pin.label, pin.net, pick(pin.high_V), r,
                                  pin.frequency_Hz * frequency_scale, duty=pin.duty, inverted=False,
-                                 delay_s=pin.start_s / frequency_scale))
+                                 delay_s=pin.start_s / frequency_scale, rest_low=pin.rest_low))
         else:
             level = pick(pin.high_V) if pin.drive == "high" else np.zeros(corners.count)
             rails.append(RailDrive(pin.label, pin.net, level, r))
@@ -292,7 +292,7 @@ def simulate(region: PumpRegion, corners, diode_params, fast: bool = False,
 def _signature(network: PumpNetwork, corners, output: str, load, fast: bool):
     canon = Canon()
     pins = tuple((canon(p.node), value_key(p.high_V), value_key(p.output_resistance_ohm),
-                  p.frequency_Hz, p.duty, p.inverted, p.delay_s) for p in network.pins)
+                  p.frequency_Hz, p.duty, p.inverted, p.delay_s, p.rest_low) for p in network.pins)
     rails = tuple((canon(r.node), value_key(r.voltage_V), value_key(r.output_resistance_ohm))
                   for r in network.rails)
     resistors = tuple((canon(a), canon(b), value_key(v)) for a, b, v in network.resistors)

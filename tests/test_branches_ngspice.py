@@ -220,6 +220,23 @@ def test_toggling_pin_average_matches_ngspice_transient():
 
 
 
+
+def test_a_late_pulse_is_high_as_long_as_an_early_one():
+    """A PULSE whose delay puts its high phase across the period's end (pulse_late: 0.8 ms
+    delay, half of a 1 ms period high) lights its LED half the time, as ngspice's .tran
+    over its third period says (drc once cut the phase at the period's end: 20 % of the
+    time)."""
+    ngspice.require_ngspice()
+    design = _analyse("pulse_late")
+    branch = _branch_of(design, "D1")
+    text = _with_pin_resistance((HERE / "pulse_late.cir").read_text(), "VPC2", "pc2", 40.0)
+    wave = ngspice.tran(text, 1e-6, 3e-3, ["v(pc2)", "v(a)"], uic=False, max_step_s=1e-6)
+    t, i = wave["time"], (wave["v(pc2)"] - wave["v(a)"]) / 120.0
+    keep = t >= 2e-3 - 1e-12
+    mean = np.trapezoid(i[keep], t[keep]) / (t[keep][-1] - t[keep][0])
+    ours = float(branch.current_A["D1"][_corner(design, 27.0)])
+    assert _deviation("pulse_late (tran average)", ours, mean) <= NOMINAL_TOL, (ours, mean)
+
 def test_three_pins_in_turn_against_ngspice_transient():
     """Three pins toggling at one frequency, each high a third of the period in turn, with
     an LED between each pair: each LED lights a third of the time (drc once multiplied the
