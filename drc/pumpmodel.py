@@ -746,8 +746,11 @@ def simulate_periodic(network: PumpNetwork, temperature_K, output_node: str, loa
     high = sys.segment_high[sys.step_segment]                               # (K, P)
     pin_high, pin_low, surge = {}, {}, {}
     for k, name in enumerate(pin_names):
-        pin_high[name] = np.where(high[:, k, None], pin_i[:, :, k], -np.inf).max(axis=0)
-        pin_low[name] = np.where(~high[:, k, None], -pin_i[:, :, k], -np.inf).max(axis=0)
+        # (a pin held high or low has no other phase: its peak there is 0 A)
+        pin_high[name] = np.where(high[:, k, None], pin_i[:, :, k], -np.inf).max(axis=0) \
+            if high[:, k].any() else np.zeros(C)
+        pin_low[name] = np.where(~high[:, k, None], -pin_i[:, :, k], -np.inf).max(axis=0) \
+            if (~high[:, k]).any() else np.zeros(C)
         surge[name] = (np.abs(startup_pin[:, :, k]).max(axis=0) if not steady_only
                        else np.full(C, np.nan))
     reverse = {name: (Vp[:, :, sys.diode_cathode[k]] - Vp[:, :, sys.diode_anode[k]]).max(axis=0)

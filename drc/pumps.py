@@ -181,6 +181,7 @@ def network_of(region: PumpRegion, corners, diode_params, series_ohm: dict[str, 
     diode_override = diode_override or {}
     nodes = set(region.nets)
     pins, rails = [], []
+    clock = next((p.frequency_Hz for p in region.pins if p.drive == "toggle"), None)
     for pin in region.pins:
         r = pin.output_resistance_ohm + series_ohm.get(pin.label, 0.0)
         nodes.add(pin.net)
@@ -188,7 +189,12 @@ def network_of(region: PumpRegion, corners, diode_params, series_ohm: dict[str, 
             pins.append(PinDrive(pin.label, pin.net, pick(pin.high_V), r,
                                  pin.frequency_Hz * frequency_scale, duty=pin.duty, inverted=False,
                                  delay_s=pin.start_s / frequency_scale, rest_low=pin.rest_low))
-        else:
+        elif pin.drive in ("high", "low") and clock:
+            # a pin held high or low: a pin of the model that never toggles, so that its
+            # current (steady, and its surge from rest) is the model's too
+            pins.append(PinDrive(pin.label, pin.net, pick(pin.high_V), r, clock * frequency_scale,
+                                 duty=1.0 if pin.drive == "high" else 0.0))
+        elif pin.drive != "input":                  # an input drives nothing
             level = pick(pin.high_V) if pin.drive == "high" else np.zeros(corners.count)
             rails.append(RailDrive(pin.label, pin.net, level, r))
     for rail in region.rails:

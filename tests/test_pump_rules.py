@@ -210,3 +210,14 @@ RL{n} k{n} 0 47
     for f in surges:
         own = "DLA" if "CKA" in f["message"] else "DLB"
         assert f" {own} " in f["fix"] and ({"DLA", "DLB"} - {own}).pop() not in f["fix"], f["fix"]
+
+
+def test_a_pin_held_high_that_charges_a_pump_has_its_surge_checked():
+    """doubler_held_pin: PA, held high, charges the pumping capacitor through the charge
+    diode; from rest it meets the empty capacitor (about 52 mA, against 25 mA). Its figure
+    is checked against ngspice in tests/test_pumps_pipeline.py."""
+    surges = [f for f in rules_of(check(PUMPS / "doubler_held_pin.cir"), "pin-overcurrent")
+              if "surge" in f["message"]]
+    assert {f["message"].split()[1] for f in surges} == {"PA", "PB"}
+    pa = next(f for f in surges if f["message"].startswith("pin PA "))
+    assert 0.040 < pa["values"]["startup_surge_A"] < 0.065 and "in series on PA" in pa["fix"]
