@@ -91,11 +91,11 @@ def check(design, settings):
             fix, ohm = _fix(design, pin, fed.get(id(pumps[0].region), []), float(surge[i]), surge=True)
             if ohm is not None:
                 added[label] = ohm
+            into, count = _capacitors_of(pin, lifted)
             found.append(finding(
                 _at(design, pin),
                 f"pin {label} takes a start-up surge of {format_quantity(float(surge[i]), 'A')} "
-                f"into the empty pump capacitor{'s' if len(lifted) > 1 else ''} "
-                f"{' and '.join(p.id for p in lifted)}, above its "
+                f"into the empty pump capacitor{'s' if count > 1 else ''} {into}, above its "
                 f"{format_quantity(pin.max_current_A, 'A')} limit",
                 elements=list(dict.fromkeys(e.name for p in lifted for e in p.elements)),
                 nets=[pin.net], corner=corner(design, i),
@@ -106,6 +106,23 @@ def check(design, settings):
             if together and f.fix:
                 f.fix += together
             yield f
+
+
+def _capacitors_of(pin, pumps) -> tuple[str, int]:
+    """The pumping capacitors a pin lifts (its net on a plate, or behind the pin's series
+    resistor), in words, and how many: ("C2 of pump C1", 1) where the pump is named after
+    another of its capacitors, ("CPA and CPB", 2) for two pumps; a pump's name where the
+    pin lifts none of its capacitors (it charges them through the charge diode)."""
+    words, count = [], 0
+    for p in pumps:
+        plates = {pin.net}
+        through = p.pin_resistors.get(pin.label)
+        if through is not None:
+            plates.update(through.nodes)
+        names = [c.name for c in p.capacitors if plates & set(c.nodes)] or [p.id]
+        count += len(names)
+        words.append(" and ".join(names) + ("" if names == [p.id] else f" of pump {p.id}"))
+    return " and ".join(words), count
 
 
 def _together(design, pump, pumped, added):

@@ -221,3 +221,33 @@ def test_a_pin_held_high_that_charges_a_pump_has_its_surge_checked():
     assert {f["message"].split()[1] for f in surges} == {"PA", "PB"}
     pa = next(f for f in surges if f["message"].startswith("pin PA "))
     assert 0.040 < pa["values"]["startup_surge_A"] < 0.065 and "in series on PA" in pa["fix"]
+
+
+def test_a_ladder_pins_surge_names_the_capacitors_that_pin_lifts(tmp_path):
+    """On a three-stage Dickson ladder PA lifts C1 and C3 and PB lifts C2: each surge
+    finding names the capacitors of its own pin, and the pump (named after C1)."""
+    net = """Porch step marker: two white LEDs in series on a three-stage ladder (our own scenario)
+.include parts.lib
+VDD vdd 0 DC 2.4
+VPA pa 0 PULSE(0 2.4 0 10n 10n 0.25m 0.5m)
+VPB pb 0 PULSE(0 2.4 0.25m 10n 10n 0.25m 0.5m)
+D1 vdd n1 SBD
+D2 n1 n2 SBD
+D3 n2 n3 SBD
+D4 n3 out SBD
+C1 pa n1 4.7u
+C2 pb n2 4.7u
+C3 pa n3 4.7u
+CR out 0 4.7u
+DL1 out m WLED
+DL2 m lk WLED
+RL lk 0 220
+.end
+"""
+    toml = ('[supply.VDD]\nsource = "VDD"\nrange = ["2.2 V", "2.6 V"]\n'
+            '[pin.PA]\nsource = "VPA"\nsupply = "VDD"\n[pin.PB]\nsource = "VPB"\nsupply = "VDD"\n')
+    path = write(tmp_path, "ladder", net, toml)
+    surges = {f["message"].split()[1]: f["message"] for f in rules_of(check(path), "pin-overcurrent")
+              if "surge" in f["message"]}
+    assert "capacitors C1 and C3 of pump C1" in surges["PA"], surges
+    assert "capacitor C2 of pump C1" in surges["PB"], surges
