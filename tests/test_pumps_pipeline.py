@@ -142,9 +142,12 @@ def corner_deck(path: Path, design, i: int, led: str) -> str:
 
 
 def ngspice_figures(deck: str, temperature_C: float, period_s: float, periods: int,
-                    output: str, pin_sources: list[str], points: int = 200) -> dict:
+                    output: str, pin_sources: list[str], points: int = 200,
+                    visible_A: float | None = None) -> dict:
     """Steady figures over the last period, surge over the first three (as drc defines it:
-    the greatest |pin current| in the first three periods from rest)."""
+    the greatest |pin current| in the first three periods from rest), and, given visible_A,
+    `visible_s`: when the LED's average over the period before first reaches it (None:
+    not within the run)."""
     vectors = [f"v({output})", "i(Vsense)"] + [f"i({s})" for s in pin_sources]
     w = tran(deck, period_s / points, periods * period_s, vectors, uic=True,
              temperature_C=temperature_C, max_step_s=period_s / points)
@@ -156,7 +159,15 @@ def ngspice_figures(deck: str, temperature_C: float, period_s: float, periods: i
 
     last = t >= (periods - 1) * period_s - 1e-12
     led = w["i(Vsense)"][last]
-    return {"peak_V": float(w[f"v({output})"][last].max()),
+    visible_s = None
+    if visible_A is not None:
+        current = w["i(Vsense)"]
+        charge = np.concatenate([[0.0], np.cumsum(0.5 * (current[1:] + current[:-1]) * np.diff(t))])
+        window = (charge - np.interp(t - period_s, t, charge, left=0.0)) / period_s
+        lit = np.flatnonzero(window >= visible_A)
+        visible_s = float(t[lit[0]]) if lit.size else None
+    return {"visible_s": visible_s,
+            "peak_V": float(w[f"v({output})"][last].max()),
             "ripple_V": float(np.ptp(w[f"v({output})"][last])),
             "modulation_percent": float(100 * np.ptp(led) / max(led.max() + led.min(), 1e-300)),
             "led_A": float(mean(w["i(Vsense)"], 0)),
@@ -218,7 +229,7 @@ LONGEST_RUN = 12000     # periods of the longest reference run
 
 
 def steady_figures(deck: str, temperature_C: float, result, i: int, output: str,
-                   pin_sources=()) -> dict:
+                   pin_sources=(), visible_A: float | None = None) -> dict:
     """ngspice_figures at corner i for twice the periods drc estimates the start-up to take
     (at least 30). The fine run goes to 160 periods; a slow mode (a reservoir that a barely
     lit LED drains) settles in more, and its last two periods agree while it still creeps:
@@ -228,7 +239,7 @@ def steady_figures(deck: str, temperature_C: float, result, i: int, output: str,
     `covered`: the run was as long as wanted."""
     wanted = max(2 * float(result.cycles_to_settle[i]), 30)
     ref = ngspice_figures(deck, temperature_C, result.period_s, int(min(wanted, 160)), output,
-                          list(pin_sources))
+                          list(pin_sources), visible_A=visible_A)
     if wanted > 160:
         periods = int(min(wanted, LONGEST_RUN))
         long = ngspice_figures(deck, temperature_C, result.period_s, periods, output, [],
@@ -260,12 +271,15 @@ def _compare(path: Path) -> list[dict]:
     for tag, i in picks.items():
         deck = corner_deck(path, design, i, led)
         sources = [design.pins[p].source for p in pump.pins]
-        ref = steady_figures(deck, float(corners.temperature_C[i]), r, i, pump.output_net, sources)
+        ref = steady_figures(deck, float(corners.temperature_C[i]), r, i, pump.output_net, sources,
+                             visible_A=pump.region.leds[0].visible_current_A)
         row = r.corner_index[i] if getattr(r, "corner_index", None) is not None else i
         wave = r.diode_current_A[led][row]
         rows.append({"case": path.stem, "corner": tag, "index": i, "where": corners.words(i),
+                     "period_s": float(r.period_s),
                      "drc_peak_V": float(r.peak_V[i]), "drc_led_A": float(load[i]),
                      "drc_ripple_V": float(r.ripple_V[i]),
+                     "drc_visible_s": float(r.time_to_visible_s[i]),
                      "drc_modulation_percent": float(100 * np.ptp(wave) / max(wave.max() + wave.min(), 1e-300)),
                      "drc_surge_A": {design.pins[p].source: float(r.startup_surge_A[p][i]) for p in pump.pins},
                      **ref})
@@ -304,6 +318,23 @@ def test_led_average_current_against_ngspice(comparisons):
     """The LED's average current over a steady period within 10 % of ngspice's."""
     for row in comparisons:
         assert _deviation(row["drc_led_A"], row["led_A"]) < CURRENT_TOL, row
+
+
+def test_time_to_visible_against_ngspice(comparisons):
+    """The time from the pins' first edge until the LED's average over a period reaches its
+    visible current, against the same from ngspice's run from rest, where that run shows
+    it: within 35 %. The check simulates the start-up in full for three periods, then
+    carries it on with the period map linearised at the steady state: that estimate came
+    out between 28 % early (dickson2, which lights after some 19 periods) and 33 % late
+    (twin_doubler_silicon at its high corner) when this test was written. 20 periods in
+    full brought the cases tried within 2 %, at 2.8 times the time per pump (112 ms for
+    bench/pump_speed.py's doubler, against its 50 ms target). A corner lit within two
+    periods is left out: the two measure the first period differently."""
+    timed = [r for r in comparisons if r["visible_s"] is not None and np.isfinite(r["drc_visible_s"])
+             and r["visible_s"] > 2 * r["period_s"]]
+    assert len(timed) >= 30
+    for r in timed:
+        assert _deviation(r["drc_visible_s"], r["visible_s"]) <= 0.35, r
 
 
 def test_ripple_and_led_modulation_against_ngspice(comparisons):
