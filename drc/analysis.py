@@ -908,16 +908,9 @@ def _pin_loads(terminals, pins: dict, supplies: dict, leds: dict) -> tuple[dict,
             if e.key in seen or e.key == driver or e.key in leds or (driver is None and e.kind == "X"):
                 continue
             # the part's circuit beyond the pin net, short of ground, rails and pins
-            found, todo, nets = {e.key: e}, [n for n in e.nodes if n not in stops], set()
-            nets.update(todo)
-            while todo:
-                for x, _ in terminals.get(todo.pop(), ()):
-                    if x.key not in found:
-                        found[x.key] = x
-                        for n in x.nodes:
-                            if n not in stops and n not in nets:
-                                nets.add(n)
-                                todo.append(n)
+            found = {e.key: e}
+            _spread(found, [n for n in e.nodes if n not in stops],
+                    lambda n: (x for x, _ in terminals.get(n, ())), stops)
             seen.update(found)
             parts = list(found.values())
             if any(x.key in leds for x in parts):
@@ -1288,17 +1281,23 @@ def _dc_reach(b: Branch, stops) -> list[Element]:
         for n in x.nodes:
             by_net.setdefault(n, []).append(x)
     reached = {led.element.key: led.element for led in b.leds}
-    todo = [n for led in b.leds for n in led.element.nodes if n not in stops]
-    seen = set(todo)
-    while todo:
-        for x in by_net.get(todo.pop(), ()):
-            if x.key not in reached:
-                reached[x.key] = x
-                for n in x.nodes:
-                    if n not in stops and n not in seen:
-                        seen.add(n)
-                        todo.append(n)
+    _spread(reached, [n for led in b.leds for n in led.element.nodes if n not in stops],
+            lambda n: by_net.get(n, ()), stops)
     return list(reached.values())
+
+
+def _spread(found: dict, todo: list, elements_on, stops) -> None:
+    """Grows `found` (key -> element) from the nets in `todo`, short of `stops`: every
+    element on a reached net joins it, and its other nets are reached in turn."""
+    nets = set(todo)
+    while todo:
+        for x in elements_on(todo.pop()):
+            if x.key not in found:
+                found[x.key] = x
+                for n in x.nodes:
+                    if n not in stops and n not in nets:
+                        nets.add(n)
+                        todo.append(n)
 
 
 SETTLED_SHARE = 0.02     # a capacitor or inductor settles within a phase if its time constant

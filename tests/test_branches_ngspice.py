@@ -203,22 +203,26 @@ def test_toggling_pin_on_current_and_average():
         assert _deviation("pulse_pin (average)", average, duty * on[t]["@d1[id]"]) <= _tolerance(t)
 
 
+def _pulse_tran_average(stem: str, source: str, net: str, periods: int) -> tuple[float, float]:
+    """(drc's LED average at 27 degC, ngspice's over the last of `periods` 1 ms periods of
+    .tran) for a pin-toggled LED behind R1 (120 ohm, in series with it alone: its current is
+    Ohm's law on the node voltages), the pin's 40 ohm put in as a resistor."""
+    design = _analyse(stem)
+    branch = _branch_of(design, "D1")
+    text = _with_pin_resistance((HERE / f"{stem}.cir").read_text(), source, net, 40.0)
+    wave = ngspice.tran(text, 1e-6, periods * 1e-3, [f"v({net})", "v(a)"], uic=False, max_step_s=1e-6)
+    t, i = wave["time"], (wave[f"v({net})"] - wave["v(a)"]) / 120.0
+    keep = t >= (periods - 1) * 1e-3 - 1e-12
+    mean = np.trapezoid(i[keep], t[keep]) / (t[keep][-1] - t[keep][0])
+    return float(branch.current_A["D1"][_corner(design, 27.0)]), float(mean)
+
+
 def test_toggling_pin_average_matches_ngspice_transient():
     """The average over one period straight from ngspice's .tran of the PULSE pin."""
     ngspice.require_ngspice()
-    design = _analyse("pulse_pin")
-    branch = _branch_of(design, "D1")
-    text = _with_pin_resistance((HERE / "pulse_pin.cir").read_text(), "VPC1", "pc1", 40.0)
-    wave = ngspice.tran(text, 1e-6, 2e-3, ["v(pc1)", "v(a)"], uic=False, max_step_s=1e-6)
-    # the LED's current is R1's (120 ohm, in series with it alone): Ohm's law on the node voltages
-    t, i = wave["time"], (wave["v(pc1)"] - wave["v(a)"]) / 120.0
-    keep = t >= 1e-3 - 1e-12
-    mean = np.trapezoid(i[keep], t[keep]) / (t[keep][-1] - t[keep][0])
-    ours = float(branch.current_A["D1"][_corner(design, 27.0)])
+    ours, mean = _pulse_tran_average("pulse_pin", "VPC1", "pc1", 2)
     # ngspice .tran, time average over the second period (edges of 1 us in 1 ms: < 0.2 %)
     assert _deviation("pulse_pin (tran average)", ours, mean) <= NOMINAL_TOL
-
-
 
 
 def test_a_late_pulse_is_high_as_long_as_an_early_one():
@@ -227,15 +231,9 @@ def test_a_late_pulse_is_high_as_long_as_an_early_one():
     over its third period says (drc once cut the phase at the period's end: 20 % of the
     time)."""
     ngspice.require_ngspice()
-    design = _analyse("pulse_late")
-    branch = _branch_of(design, "D1")
-    text = _with_pin_resistance((HERE / "pulse_late.cir").read_text(), "VPC2", "pc2", 40.0)
-    wave = ngspice.tran(text, 1e-6, 3e-3, ["v(pc2)", "v(a)"], uic=False, max_step_s=1e-6)
-    t, i = wave["time"], (wave["v(pc2)"] - wave["v(a)"]) / 120.0
-    keep = t >= 2e-3 - 1e-12
-    mean = np.trapezoid(i[keep], t[keep]) / (t[keep][-1] - t[keep][0])
-    ours = float(branch.current_A["D1"][_corner(design, 27.0)])
+    ours, mean = _pulse_tran_average("pulse_late", "VPC2", "pc2", 3)
     assert _deviation("pulse_late (tran average)", ours, mean) <= NOMINAL_TOL, (ours, mean)
+
 
 def test_three_pins_in_turn_against_ngspice_transient():
     """Three pins toggling at one frequency, each high a third of the period in turn, with

@@ -647,13 +647,34 @@ def _random_doubler(rng, k: int) -> tuple[str, str]:
         lift = "lb"
     lines += [f"DCH {charge_from} x {diode}", f"CP {lift} x {rng.choice(['0.1u', '0.47u', '1u', '4.7u', '10u', '22u'])}",
               f"DTR x out {diode}"]
-    reservoir = rng.choice([None, "1u", "4.7u"])
+    return _with_load(rng, lines, config, [None, "1u", "4.7u"], ["10", "47", "100", "330", "1k"])
+
+
+def _with_load(rng, lines, config, reservoirs, resistors, visible: str | None = None):
+    """A random pump's netlist and design context, finished: a reservoir on `out` drawn
+    from `reservoirs` (None: none), the white LED DL and its resistor from `resistors`."""
+    reservoir = rng.choice(reservoirs)
     if reservoir:
         lines.append(f"CR out 0 {reservoir}")
-    lines += ["DL out lk WLED", f"RL lk 0 {rng.choice(['10', '47', '100', '330', '1k'])}", ".end"]
+    lines += ["DL out lk WLED", f"RL lk 0 {rng.choice(resistors)}", ".end"]
     config.append('[led.DL]\nelement = "DL"\ncolour = "white"\n'
-                  '[ambient]\ntemperature = ["-20 degC", "60 degC"]')
+                  + (f'visible_current = "{visible}"\n' if visible else "")
+                  + '[ambient]\ntemperature = ["-20 degC", "60 degC"]')
     return "\n".join(lines) + "\n", "\n\n".join(config) + "\n"
+
+
+def _random_pumps(tmp_path, make, seed: int, count: int):
+    """(netlist, path, analysed design) for `count` pumps that make(rng, k) draws, seeded,
+    each written with its design context beside the test parts library."""
+    import random
+    rng = random.Random(seed)
+    (tmp_path / "parts.lib").write_text((PUMPS / "parts.lib").read_text())
+    for k in range(count):
+        netlist, config = make(rng, k)
+        path = tmp_path / f"random_{k}.cir"
+        path.write_text(netlist)
+        path.with_suffix(".toml").write_text(config)
+        yield netlist, path, _load(path).design
 
 
 def test_random_doublers_against_ngspice(tmp_path):
@@ -664,16 +685,8 @@ def test_random_doublers_against_ngspice(tmp_path):
     periods). Such a set
     found the model stopping short of the steady state where a reservoir drains slowly."""
     require_ngspice()
-    import random
-    rng = random.Random(20261204)
-    (tmp_path / "parts.lib").write_text((PUMPS / "parts.lib").read_text())
     compared = 0
-    for k in range(10):
-        netlist, config = _random_doubler(rng, k)
-        path = tmp_path / f"random_{k}.cir"
-        path.write_text(netlist)
-        path.with_suffix(".toml").write_text(config)
-        design = _load(path).design
+    for netlist, path, design in _random_pumps(tmp_path, _random_doubler, 20261204, 10):
         [pump] = design.pumps
         r, i = pump.result, design.corners.nominal
         if r.load_average_A[i] < 1e-6:
@@ -710,13 +723,8 @@ def _random_dickson(rng, k: int) -> tuple[str, str]:
         lines.append(f"C{s} {'pa' if s % 2 else 'pb'} n{s} {value}")
         previous = f"n{s}"
     lines.append(f"D{stages + 1} {previous} out {diode}")
-    reservoir = rng.choice([None, "1u", "4.7u", "10u"])
-    if reservoir:
-        lines.append(f"CR out 0 {reservoir}")
-    lines += ["DL out lk WLED", f"RL lk 0 {rng.choice(['47', '100', '330', '1k', '3.3k'])}", ".end"]
-    config.append('[led.DL]\nelement = "DL"\ncolour = "white"\nvisible_current = "0.2 mA"\n'
-                  '[ambient]\ntemperature = ["-20 degC", "60 degC"]')
-    return "\n".join(lines) + "\n", "\n\n".join(config) + "\n"
+    return _with_load(rng, lines, config, [None, "1u", "4.7u", "10u"],
+                      ["47", "100", "330", "1k", "3.3k"], visible="0.2 mA")
 
 
 def _random_bootstrap(rng, k: int) -> tuple[str, str]:
@@ -746,16 +754,8 @@ def test_random_ladders_and_bootstraps_against_ngspice(tmp_path, make, topology,
     written: the LED within 0.78 % on the ladders and 2.2 % on the bootstraps (one at
     12 uA), the peak within 1.0 %."""
     require_ngspice()
-    import random
-    rng = random.Random(seed)
-    (tmp_path / "parts.lib").write_text((PUMPS / "parts.lib").read_text())
     compared = 0
-    for k in range(6):
-        netlist, config = make(rng, k)
-        path = tmp_path / f"random_{k}.cir"
-        path.write_text(netlist)
-        path.with_suffix(".toml").write_text(config)
-        design = _load(path).design
+    for netlist, path, design in _random_pumps(tmp_path, make, seed, 6):
         [pump] = design.pumps
         assert pump.topology == topology, netlist
         r = pump.result
