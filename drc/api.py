@@ -241,7 +241,8 @@ class Design(Protocol):
     pins               label -> Pin(label, net, source, supply (a supply label),
                        output_resistance_ohm, max_current_A, drive "high"|"low"|"toggle"|
                        "input", frequency_Hz, duty, clamp_above_supply_V, clamp_current_A,
-                       high_V at every corner, location)
+                       high_V at every corner, rest_low (low until its first rising edge,
+                       from rest), location)
     supply_of_net(net), pin_of_net(net)   the Supply or Pin on a net, or None
     leds               element name -> Led(element, name, colour, params (SPICE diode
                        parameters), visible_current_A, max_current_A, max_reverse_V, eye_safety)
@@ -250,7 +251,9 @@ class Design(Protocol):
                        supply, pin, sink_pin, unlimited, note; and per LED name, arrays at
                        every corner: current_A (average over the drive's period),
                        peak_current_A (brightest phase), forward_V, reverse_V; pin_current_A
-                       per pin label; phases: [Phase(share, drive_V, words)])
+                       per pin label; phases: [Phase(share, drive_V, words)]; pin_loads:
+                       what else its pins' nets drive, solved with it (resistors to ground
+                       or a rail), else [])
     pumps              every charge pump: Pump(id, topology "doubler"|"dickson"|"bootstrap",
                        stages, capacitors, charge_diode, transfer_diodes, reservoir,
                        output_net, pins (labels), charge_from, elements, pin_resistors
