@@ -369,8 +369,7 @@ def flicker_of_branch(design: Design, branch: Branch, led: Led):
         wave = r.diode_current_A[led.name][row[design.corners.nominal] if row is not None
                                            else design.corners.nominal]
         return pins[0].frequency_Hz, modulation_percent(wave)
-    pins = [p for p in (branch.pin, branch.sink_pin) if p is not None and p.drive == "toggle"]
-    pins += [p for p in branch.network_pins if p.drive == "toggle" and p not in pins]
+    pins = branch.toggling_pins()
     if not pins or not branch.phases:
         return None
     n = design.corners.nominal

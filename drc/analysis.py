@@ -351,6 +351,15 @@ class Branch:
     def led(self) -> Led:
         return self.leds[0]
 
+    def toggling_pins(self) -> list:
+        """The toggling pins that drive it (its pin, its sink pin, its network's pins), each
+        once, in that order."""
+        out: list = []
+        for p in (self.pin, self.sink_pin, *self.network_pins):
+            if p is not None and p.drive == "toggle" and all(p is not q for q in out):
+                out.append(p)
+        return out
+
     @property
     def unlimited(self) -> bool:
         return not self.resistors
@@ -579,8 +588,7 @@ def analyse(flat: FlatDesign, context: Context) -> Design:
     for b in branches:
         if b.pump_region is not None or not b.phases:
             continue
-        toggles = list({p.label: p for p in (b.pin, b.sink_pin, *b.network_pins)
-                        if p is not None and p.drive == "toggle" and p.frequency_Hz}.values())
+        toggles = [p for p in b.toggling_pins() if p.frequency_Hz]
         if len({p.frequency_Hz for p in toggles}) > 1:
             assumptions.add("pins " + ", ".join(f"{p.label} ({p.frequency_Hz:g} Hz)" for p in toggles)
                             + " toggle at different frequencies in one circuit: the share of time "
@@ -907,6 +915,9 @@ def _pin_loads(terminals, pins: dict, supplies: dict, leds: dict) -> tuple[dict,
         for e, _ in terminals.get(net, ()):
             if e.key in seen or e.key == driver or e.key in leds or (driver is None and e.kind == "X"):
                 continue
+            if len(e.nodes) == 2 and any(x.key in leds for n in e.nodes if n not in stops
+                                         for x, _ in terminals.get(n, ())):
+                continue                       # the series part of an LED's branch (most are)
             # the part's circuit beyond the pin net, short of ground, rails and pins
             found = {e.key: e}
             _spread(found, [n for n in e.nodes if n not in stops],

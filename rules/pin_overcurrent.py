@@ -108,6 +108,11 @@ def check(design, settings):
             yield f
 
 
+def _lows(branch) -> dict:
+    """Each LED of a pump branch's region -> the corner where it is least lit."""
+    return {led.name: worst_low(branch.current_A[led.name]) for led in branch.pump_region.leds}
+
+
 def _capacitors_of(pin, pumps) -> tuple[str, int]:
     """The pumping capacitors a pin lifts (its net on a plate, or behind the pin's series
     resistor), in words, and how many: ("C2 of pump C1", 1) where the pump is named after
@@ -133,7 +138,7 @@ def _together(design, pump, pumped, added):
         return ""
     region = pump.region
     branch = pumped[0]
-    lows = {led.name: worst_low(branch.current_A[led.name]) for led in region.leds}
+    lows = _lows(branch)
 
     def work():
         try:
@@ -198,7 +203,7 @@ def _fix(design, pin, pumped, current, surge=False):
     branch = pumped[0]
     region = branch.pump_region
     # every LED the pump feeds, each at its own low corner
-    lows = {led.name: worst_low(branch.current_A[led.name]) for led in region.leds}
+    lows = _lows(branch)
     index = [p.label for p in region.pins].index(pin.label) if pin.label in [p.label for p in region.pins] else -1
     outcome = _remembered((region.signature, index, value, pin.max_current_A)
                           if region.signature is not None else None,
